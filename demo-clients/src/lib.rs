@@ -1,0 +1,1 @@
+//! startmargin-demo (under construction)

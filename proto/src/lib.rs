@@ -1,0 +1,1 @@
+//! startmargin-proto (under construction)

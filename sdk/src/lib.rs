@@ -1,0 +1,1 @@
+//! startmargin-sdk (under construction)

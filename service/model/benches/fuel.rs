@@ -1,0 +1,2 @@
+//! Benchmarks (to be written).
+fn main() {}

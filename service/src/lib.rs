@@ -1,0 +1,1 @@
+//! startmargin-service (under construction)

@@ -1,0 +1,1 @@
+//! startmargin-e2e (under construction)
