@@ -1,1 +1,742 @@
-//! (module under construction)
+//! The assembled assessment: from a forecast, the latest telemetry and a vehicle to a start margin,
+//! its heat budget, cranking, the soaked state, the fuel gel outlook and the limiting factor.
+//!
+//! Method (model.md §6): a *sequential attribution* that sums exactly. Starting from the intake
+//! temperature, each effect is switched on in a fixed order and its term is the change it makes:
+//! ideal isentropic end temperature (variable cp) → wall loss → leakage loss → fuel evaporation →
+//! intake heater → glow plugs = predicted temperature of the igniting charge. The margin is that
+//! minus the temperature ignition needs within the crank-angle window at the cranking speed.
+//! Which charge temperature ignites depends on the combustion system
+//! ([`calibration::core_weight`]): the adiabatic core in a direct-injection bowl, the wall-cooled
+//! mass average in a divided chamber.
+//!
+//! Units: SI inside (K, Pa, s, W, m). Times are seconds on the caller's axis (e.g. Unix seconds).
+//! Deterministic: the same input always gives the same output, bit for bit.
+
+pub mod actions;
+pub mod outlook;
+pub mod calibration;
+pub mod uncertainty;
+pub mod unassisted;
+
+use crate::aids;
+use crate::air;
+use crate::archetypes::{AidConfig, CombustionSystem, EngineConfig};
+use crate::battery::{self, Battery};
+use crate::compression::{self, CompressionInput, CompressionResult};
+use crate::constants::STANDARD_ATMOSPHERE_PA;
+use crate::cranking::{self, CrankingInput, CrankingResult, Starter};
+use crate::error::{ModelError, check_range};
+use crate::evaporation;
+use crate::fuel::{self, ColdFlowProperties, FuelDescription};
+use crate::gel_risk::{self, FuelTemperatureSample, GelOutlook};
+use crate::ignition::{self, DelayCorrelation};
+use crate::oil::{self, SaeGrade};
+use crate::soak::{self, FilterMount, Forecast, ForecastHour, HeaterSchedule, ThermalNode};
+
+/// Version of the model, reported with every answer.
+pub const MODEL_VERSION: &str = concat!("startmargin-model ", env!("CARGO_PKG_VERSION"));
+
+/// Longest forecast the model accepts, in steps (bounds work and stack buffers).
+pub const MAX_FORECAST_STEPS: usize = 168;
+
+/// State of charge assumed when neither the profile nor a rested voltage gives one (estimate:
+/// a vehicle in daily service with a working charging system).
+pub const DEFAULT_STATE_OF_CHARGE: f64 = 0.9;
+
+/// The starting battery as the caller describes it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BatteryConfig {
+    /// Rated cold cranking amps (SAE J537).
+    pub rated_cca_a: f64,
+    /// Nominal voltage, 12 or 24 V.
+    pub nominal_v: f64,
+    /// State of charge 0..1, when known.
+    pub state_of_charge: Option<f64>,
+    /// Health 0..1 (1 = new).
+    pub health_fraction: f64,
+}
+
+/// The fuel system as the caller describes it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FuelConfig {
+    /// What the fuel is.
+    pub description: FuelDescription,
+    /// Tank capacity, litres.
+    pub tank_capacity_l: f64,
+    /// Where the filter sits.
+    pub filter_mount: FilterMount,
+}
+
+/// Latest telemetry; every reading optional.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Telemetry {
+    /// When the readings were taken, s.
+    pub observed_at_s: Option<f64>,
+    /// Coolant temperature, K.
+    pub coolant_t_k: Option<f64>,
+    /// Oil temperature, K.
+    pub oil_t_k: Option<f64>,
+    /// Fuel temperature, K.
+    pub fuel_t_k: Option<f64>,
+    /// Ambient air at the vehicle, K.
+    pub ambient_t_k: Option<f64>,
+    /// Battery voltage at rest, V.
+    pub battery_rest_v: Option<f64>,
+    /// Fuel level 0..1.
+    pub fuel_level_fraction: Option<f64>,
+}
+
+/// An owned forecast (the service builds it; [`Forecast`] borrows it).
+#[derive(Debug, Clone, PartialEq)]
+pub struct ForecastSeries {
+    /// Start of the first step, s.
+    pub start_s: f64,
+    /// Step length, s.
+    pub step_s: f64,
+    /// The steps.
+    pub hours: Vec<ForecastHour>,
+    /// One-sigma spread of each step's air temperature, K (empty when not given).
+    pub air_spread_k: Vec<f64>,
+    /// Barometric pressure at the parking place, Pa.
+    pub barometric_pa: f64,
+}
+
+impl ForecastSeries {
+    /// Borrowed view for the soak model.
+    pub fn view(&self) -> Forecast<'_> {
+        Forecast { start_s: self.start_s, step_s: self.step_s, hours: &self.hours }
+    }
+}
+
+/// Options of one assessment.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct AssessOptions {
+    /// Ignition-delay correlation.
+    pub delay_correlation: DelayCorrelation,
+    /// Also compute the margin for a departure at each forecast step.
+    pub include_margin_path: bool,
+}
+
+/// Everything the model needs for one vehicle and one departure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct VehicleNight {
+    /// Resolved engine.
+    pub engine: EngineConfig,
+    /// Aids.
+    pub aids: AidConfig,
+    /// Battery.
+    pub battery: BatteryConfig,
+    /// Oil grade.
+    pub oil: SaeGrade,
+    /// Fuel.
+    pub fuel: FuelConfig,
+    /// Parked sheltered from wind and sky.
+    pub sheltered: bool,
+    /// Latest telemetry.
+    pub telemetry: Telemetry,
+    /// Forecast.
+    pub forecast: ForecastSeries,
+    /// Planned departure, s.
+    pub departure_s: f64,
+    /// Planned block-heater connection [from, until), s.
+    pub block_heater_plan: Option<(f64, f64)>,
+    /// Options.
+    pub options: AssessOptions,
+}
+
+/// The heat budget (see the module doc); temperatures in K, terms in K.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct HeatBudget {
+    /// Charge temperature at IVC without aids, K.
+    pub intake_t_k: f64,
+    /// Ideal isentropic end temperature, K.
+    pub ideal_end_t_k: f64,
+    /// Wall loss, K (positive = cooling).
+    pub wall_loss_k: f64,
+    /// Leakage loss, K (positive = cooling).
+    pub leakage_loss_k: f64,
+    /// Evaporation cooling, K (positive = cooling).
+    pub evaporation_loss_k: f64,
+    /// Intake heater gain, K.
+    pub intake_heater_gain_k: f64,
+    /// Glow plug gain, K.
+    pub glow_plug_gain_k: f64,
+    /// Predicted igniting-charge temperature at TDC, K.
+    pub predicted_end_t_k: f64,
+    /// Required temperature, K.
+    pub required_t_k: f64,
+    /// Cylinder pressure at TDC, Pa.
+    pub end_p_pa: f64,
+    /// Peak cranking pressure a gauge would read, Pa gauge.
+    pub compression_gauge_pa: f64,
+}
+
+impl HeatBudget {
+    /// Margin = predicted − required, K.
+    pub fn margin_k(&self) -> f64 {
+        self.predicted_end_t_k - self.required_t_k
+    }
+}
+
+/// Temperatures at departure, K.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct SoakedState {
+    /// Engine node.
+    pub engine_t_k: f64,
+    /// Battery.
+    pub battery_t_k: f64,
+    /// Fuel tank.
+    pub fuel_tank_t_k: f64,
+    /// Fuel filter.
+    pub fuel_filter_t_k: f64,
+    /// Air.
+    pub air_t_k: f64,
+}
+
+/// What decides the outcome.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LimitingFactor {
+    /// Nothing limits: comfortable margin.
+    None,
+    /// The soaked engine takes too much heat from the charge.
+    ColdCharge,
+    /// Cranking below the engine's minimum starting speed.
+    SlowCranking,
+    /// Battery electrolyte frozen.
+    FrozenBattery,
+    /// Leakage loses too much charge.
+    Leakage,
+    /// Fuel will not pass the filter.
+    WaxedFuel,
+}
+
+/// Margin below which the outcome is "limited" even though a start is expected, K (about the
+/// spread of the published start limits; estimate).
+pub const COMFORT_MARGIN_K: f64 = 15.0;
+
+/// Cranking as assessed.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CrankingSummary {
+    /// The cranking model's answer.
+    pub result: CrankingResult,
+    /// Minimum starting speed, rpm.
+    pub min_start_speed_rpm: f64,
+    /// Oil dynamic viscosity at the oil temperature, Pa s.
+    pub oil_viscosity_pa_s: f64,
+}
+
+/// One point of the night's margin path.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct MarginPoint {
+    /// Departure time considered, s.
+    pub at_s: f64,
+    /// Margin, K.
+    pub margin_k: f64,
+}
+
+/// The answer.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Assessment {
+    /// Start margin, K.
+    pub margin_k: f64,
+    /// All checks together: margin, cranking, battery, fuel.
+    pub start_expected: bool,
+    /// What decides.
+    pub limiting_factor: LimitingFactor,
+    /// The heat budget.
+    pub budget: HeatBudget,
+    /// Cranking.
+    pub cranking: CrankingSummary,
+    /// Temperatures at departure.
+    pub soaked: SoakedState,
+    /// Fuel cold-flow properties used.
+    pub cold_flow: ColdFlowProperties,
+    /// Fuel gel outlook.
+    pub gel: GelOutlook,
+    /// Fuel temperature path (hourly from the start of the night to departure).
+    pub fuel_path: Vec<FuelTemperatureSample>,
+    /// Margin path, when asked for.
+    pub margin_path: Vec<MarginPoint>,
+    /// State of charge used (0..1) and whether it came from a rested voltage.
+    pub state_of_charge: f64,
+    /// Block heater energy used before departure, J.
+    pub block_heater_energy_j: f64,
+}
+
+/// Where the night starts: the latest telemetry, or the forecast start with everything at ambient.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct StartState {
+    at_s: f64,
+    air_t_k: f64,
+    engine_t_k: f64,
+    battery_t_k: f64,
+    tank_t_k: f64,
+    filter_t_k: f64,
+}
+
+/// Thermal nodes of the vehicle.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Nodes {
+    engine: ThermalNode,
+    battery: ThermalNode,
+    tank: ThermalNode,
+    filter: ThermalNode,
+}
+
+/// Shelter reduces the wind a node sees and its view of the night sky (estimate: an open-sided
+/// shed or wind break keeps about a third of the wind and a tenth of the sky).
+const SHELTER_WIND_SHARE: f64 = 0.35;
+const SHELTER_SKY_SHARE: f64 = 0.1;
+
+/// Battery mass per rated cold cranking amp, kg/A (group 31 batteries: ≈ 27 kg for ≈ 900 CCA; estimate).
+const BATTERY_KG_PER_CCA: f64 = 0.03;
+
+fn sheltered(node: ThermalNode, sheltered: bool) -> ThermalNode {
+    if sheltered {
+        ThermalNode {
+            wind_exposure: node.wind_exposure * SHELTER_WIND_SHARE,
+            sky_view_area_m2: node.sky_view_area_m2 * SHELTER_SKY_SHARE,
+            ..node
+        }
+    } else {
+        node
+    }
+}
+
+fn build_nodes(night: &VehicleNight, fuel_level: f64) -> Nodes {
+    let e = &night.engine;
+    let mut engine = soak::engine_node(e.geometry.displacement_m3());
+    // The caller's heat capacity keeps the node's conductance: τ scales with it.
+    engine.heat_capacity_j_per_k = e.heat_capacity_j_per_k;
+    if let Some(tau_s) = e.cooldown_time_constant_s {
+        // A fitted time constant is a still-air figure from the vehicle's own log.
+        engine = engine.with_time_constant(tau_s, 0.0);
+    }
+    let battery_kg = (night.battery.rated_cca_a * BATTERY_KG_PER_CCA).max(5.0);
+    Nodes {
+        engine: sheltered(engine, night.sheltered),
+        battery: sheltered(soak::battery_node(battery_kg), night.sheltered),
+        tank: sheltered(
+            soak::fuel_tank_node(night.fuel.tank_capacity_l, fuel_level),
+            night.sheltered,
+        ),
+        filter: sheltered(soak::fuel_filter_node(night.fuel.filter_mount), night.sheltered),
+    }
+}
+
+fn start_state(night: &VehicleNight) -> Result<StartState, ModelError> {
+    let f = night.forecast.view();
+    let t = &night.telemetry;
+    let has_temps = t.coolant_t_k.is_some() || t.oil_t_k.is_some() || t.fuel_t_k.is_some();
+    let at_s = match (t.observed_at_s, has_temps) {
+        (Some(at), true) => at,
+        _ => f.start_s,
+    };
+    if at_s < f.start_s {
+        return Err(ModelError::Inconsistent(
+            "telemetry is older than the forecast start: send a forecast that covers the time since the readings",
+        ));
+    }
+    if at_s > night.departure_s {
+        return Err(ModelError::Inconsistent("telemetry is later than the departure"));
+    }
+    let hour = f.at(at_s).ok_or(ModelError::ForecastTooShort {
+        covered_until_s: f.covered_until_s(),
+        requested_s: at_s,
+    })?;
+    let air_t_k = t.ambient_t_k.unwrap_or(hour.air_t_k);
+    let engine_t_k = t.coolant_t_k.or(t.oil_t_k).unwrap_or(air_t_k);
+    // A battery under the hood or in a box starts between the engine and the air (estimate).
+    let battery_t_k = air_t_k + 0.5 * (engine_t_k - air_t_k);
+    let tank_t_k = t.fuel_t_k.unwrap_or(air_t_k);
+    let filter_t_k = match night.fuel.filter_mount {
+        FilterMount::EngineBay => 0.5 * (engine_t_k + tank_t_k),
+        FilterMount::Frame => tank_t_k,
+    };
+    Ok(StartState { at_s, air_t_k, engine_t_k, battery_t_k, tank_t_k, filter_t_k })
+}
+
+fn heater_schedule(night: &VehicleNight) -> Option<HeaterSchedule> {
+    match night.block_heater_plan {
+        Some((from_s, until_s)) if night.aids.block_heater_w > 0.0 => Some(HeaterSchedule {
+            power_w: night.aids.block_heater_w,
+            on_from_s: from_s,
+            on_until_s: until_s,
+        }),
+        _ => None,
+    }
+}
+
+/// Checks the parts of the input that the sub-models do not check themselves.
+fn validate(night: &VehicleNight) -> Result<(), ModelError> {
+    let f = night.forecast.view();
+    f.validate()?;
+    if night.forecast.hours.len() > MAX_FORECAST_STEPS {
+        return Err(ModelError::OutOfRange {
+            quantity: "forecast_steps",
+            value: night.forecast.hours.len() as f64,
+            reason: "at most 168 steps",
+        });
+    }
+    check_range("barometric_pa", night.forecast.barometric_pa, 50_000.0, 110_000.0, "50–110 kPa")?;
+    check_range("departure_s", night.departure_s, -1e12, 1e12, "a finite time")?;
+    if night.departure_s > f.covered_until_s() || night.departure_s < f.start_s {
+        return Err(ModelError::ForecastTooShort {
+            covered_until_s: f.covered_until_s(),
+            requested_s: night.departure_s,
+        });
+    }
+    if let Some((from_s, until_s)) = night.block_heater_plan {
+        check_range("block_heater_on_from_s", from_s, -1e12, 1e12, "a finite time")?;
+        check_range("block_heater_on_until_s", until_s, -1e12, 1e12, "a finite time")?;
+        if until_s < from_s {
+            return Err(ModelError::Inconsistent("block heater switched off before it is switched on"));
+        }
+    }
+    check_range("tank_capacity_l", night.fuel.tank_capacity_l, 5.0, 3_000.0, "5–3000 L")?;
+    check_range("ignition_window_deg", night.engine.ignition_window_deg, 5.0, 90.0, "5–90 °CA")?;
+    check_range("glow_preheat_s", night.aids.glow_preheat_s, 0.0, 600.0, "0–600 s")?;
+    check_range("intake_heater_w", night.aids.intake_heater_w, 0.0, 20_000.0, "0–20 kW")?;
+    check_range("block_heater_w", night.aids.block_heater_w, 0.0, 5_000.0, "0–5 kW")?;
+    check_range("battery_health_fraction", night.battery.health_fraction, 0.05, 1.0, "5–100 %")?;
+    Ok(())
+}
+
+/// Assesses one vehicle for one departure.
+pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
+    validate(night)?;
+    let start = start_state(night)?;
+    let fuel_level = night.telemetry.fuel_level_fraction.unwrap_or(0.5);
+    check_range("fuel_level_fraction", fuel_level, 0.0, 1.0, "0–100 %")?;
+    let nodes = build_nodes(night, fuel_level);
+    let heater = heater_schedule(night);
+    let soc = state_of_charge(night)?;
+
+    let point = start_point(night, &nodes, &start, heater.as_ref(), soc, night.departure_s)?;
+
+    // Fuel path, hourly from the start of the night, then the departure itself.
+    let cold_flow = fuel::cold_flow_properties(&night.fuel.description)?;
+    let fuel_path = fuel_path(night, &nodes, &start)?;
+    let gel = gel_risk::gel_outlook(&cold_flow, &fuel_path, night.departure_s)?;
+
+    let margin_k = point.budget.margin_k();
+    let frozen = point.cranking.result.battery_frozen;
+    let slow = point.cranking.result.crank_rpm < night.engine.min_start_speed_rpm;
+    let limiting_factor = if frozen {
+        LimitingFactor::FrozenBattery
+    } else if gel.blocks_start {
+        LimitingFactor::WaxedFuel
+    } else if slow {
+        LimitingFactor::SlowCranking
+    } else if margin_k < COMFORT_MARGIN_K {
+        if point.budget.leakage_loss_k > point.budget.wall_loss_k {
+            LimitingFactor::Leakage
+        } else {
+            LimitingFactor::ColdCharge
+        }
+    } else {
+        LimitingFactor::None
+    };
+    let start_expected = !frozen && !gel.blocks_start && !slow && margin_k > 0.0;
+
+    let margin_path = if night.options.include_margin_path {
+        margin_path(night, &nodes, &start, heater.as_ref(), soc)?
+    } else {
+        Vec::new()
+    };
+    let block_heater_energy_j = heater.map_or(0.0, |h| {
+        let on_s = (h.on_until_s.min(night.departure_s) - h.on_from_s.max(start.at_s)).max(0.0);
+        h.power_w * on_s
+    });
+
+    Ok(Assessment {
+        margin_k,
+        start_expected,
+        limiting_factor,
+        budget: point.budget,
+        cranking: point.cranking,
+        soaked: point.soaked,
+        cold_flow,
+        gel,
+        fuel_path,
+        margin_path,
+        state_of_charge: soc,
+        block_heater_energy_j,
+    })
+}
+
+fn state_of_charge(night: &VehicleNight) -> Result<f64, ModelError> {
+    match (night.telemetry.battery_rest_v, night.battery.state_of_charge) {
+        (Some(v), _) => battery::state_of_charge_from_rest_v(v, night.battery.nominal_v),
+        (None, Some(soc)) => check_range("state_of_charge", soc, 0.0, 1.0, "0–100 %"),
+        (None, None) => Ok(DEFAULT_STATE_OF_CHARGE),
+    }
+}
+
+/// The start computation for a departure at `at_s`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct StartPoint {
+    budget: HeatBudget,
+    cranking: CrankingSummary,
+    soaked: SoakedState,
+}
+
+fn start_point(
+    night: &VehicleNight,
+    nodes: &Nodes,
+    start: &StartState,
+    heater: Option<&HeaterSchedule>,
+    state_of_charge: f64,
+    at_s: f64,
+) -> Result<StartPoint, ModelError> {
+    let f = night.forecast.view();
+    let t = |node: &ThermalNode, t0: f64, h: Option<&HeaterSchedule>| {
+        soak::node_temperature_k(node, t0, start.at_s, &f, h, at_s)
+    };
+    let engine_t_k = t(&nodes.engine, start.engine_t_k, heater)?;
+    let battery_t_k = t(&nodes.battery, start.battery_t_k, None)?;
+    let fuel_tank_t_k = t(&nodes.tank, start.tank_t_k, None)?;
+    let fuel_filter_t_k = t(&nodes.filter, start.filter_t_k, None)?;
+    let hour = f.at(at_s).ok_or(ModelError::ForecastTooShort {
+        covered_until_s: f.covered_until_s(),
+        requested_s: at_s,
+    })?;
+    // Between the telemetry's own ambient and the forecast, the forecast holds at departure.
+    let air_t_k = hour.air_t_k;
+    let soaked = SoakedState { engine_t_k, battery_t_k, fuel_tank_t_k, fuel_filter_t_k, air_t_k };
+    let _ = start.air_t_k;
+
+    let engine = &night.engine;
+    let cranking_input = CrankingInput {
+        battery: Battery {
+            rated_cca_a: night.battery.rated_cca_a,
+            nominal_v: night.battery.nominal_v,
+            state_of_charge,
+            health_fraction: night.battery.health_fraction,
+            temperature_k: battery_t_k,
+        },
+        starter: Starter {
+            rated_power_w: engine.starter_power_w,
+            nominal_v: night.battery.nominal_v,
+            gear_ratio: engine.starter_gear_ratio,
+            cable_resistance_ohm: cranking::DEFAULT_CABLE_RESISTANCE_OHM * night.battery.nominal_v / 12.0,
+        },
+        displacement_m3: engine.geometry.displacement_m3(),
+        cylinders: engine.geometry.cylinders,
+        compression_ratio: engine.geometry.compression_ratio,
+        oil: night.oil,
+        oil_t_k: engine_t_k,
+    };
+    let result = cranking::cranking_speed(&cranking_input)?;
+    let cranking = CrankingSummary {
+        result,
+        min_start_speed_rpm: engine.min_start_speed_rpm,
+        oil_viscosity_pa_s: oil::dynamic_viscosity_pa_s(night.oil, engine_t_k)?,
+    };
+    // Below the minimum starting speed the engine does not start whatever the charge does; the
+    // budget is then shown at the minimum starting speed (the best the starter would need to do).
+    let crank_rpm = result.crank_rpm.max(engine.min_start_speed_rpm);
+    let cetane = fuel::cetane_number(&night.fuel.description)?;
+    let budget = heat_budget(night, air_t_k, engine_t_k, fuel_tank_t_k, crank_rpm, cetane)?;
+    Ok(StartPoint { budget, cranking, soaked })
+}
+
+/// Igniting-charge temperature: the blend of adiabatic core and mass average that the combustion
+/// system implies (see [`calibration::core_weight`]).
+fn charge_t_k(r: &CompressionResult, c: CombustionSystem) -> f64 {
+    r.tdc_mean_t_k + calibration::core_weight(c) * (r.tdc_core_t_k - r.tdc_mean_t_k)
+}
+
+/// Wall heat-transfer multiplier of a combustion system.
+pub fn wall_multiplier(c: CombustionSystem) -> f64 {
+    match c {
+        CombustionSystem::DirectInjection => calibration::DI_WALL_MULTIPLIER,
+        CombustionSystem::SwirlChamber => calibration::SWIRL_WALL_MULTIPLIER,
+        CombustionSystem::Prechamber => calibration::PRECHAMBER_WALL_MULTIPLIER,
+    }
+}
+
+/// Effective leak area of the engine: fitted to a measured compression when given.
+pub fn leak_area_m2(engine: &EngineConfig) -> Result<f64, ModelError> {
+    match engine.measured_compression_abs_pa {
+        None => Ok(engine.leak_area_m2),
+        Some(measured_abs_pa) => {
+            let template = CompressionInput {
+                geometry: engine.geometry,
+                crank_rpm: calibration::COMPRESSION_TEST_RPM,
+                intake_t_k: calibration::COMPRESSION_TEST_INTAKE_T_K,
+                intake_p_pa: STANDARD_ATMOSPHERE_PA,
+                wall_t_k: calibration::COMPRESSION_TEST_WALL_T_K,
+                heat_transfer: calibration::WALL_HEAT_TRANSFER,
+                heat_transfer_multiplier: wall_multiplier(engine.combustion),
+                leak_area_m2: 0.0,
+                crankcase_p_pa: STANDARD_ATMOSPHERE_PA,
+            };
+            compression::leak_area_for_peak_pressure_m2(&template, measured_abs_pa)
+        }
+    }
+}
+
+/// The sequential heat budget at one cranking state.
+fn heat_budget(
+    night: &VehicleNight,
+    air_t_k: f64,
+    wall_t_k: f64,
+    fuel_t_k: f64,
+    crank_rpm: f64,
+    cetane_number: f64,
+) -> Result<HeatBudget, ModelError> {
+    let engine = &night.engine;
+    let intake_p_pa = night.forecast.barometric_pa;
+    let leak_area_m2 = engine.leak_area_m2;
+    let base = CompressionInput {
+        geometry: engine.geometry,
+        crank_rpm,
+        intake_t_k: air_t_k,
+        intake_p_pa,
+        wall_t_k,
+        heat_transfer: calibration::WALL_HEAT_TRANSFER,
+        heat_transfer_multiplier: 0.0,
+        leak_area_m2: 0.0,
+        crankcase_p_pa: intake_p_pa,
+    };
+    let (ideal_end_t_k, _) =
+        air::isentropic_compression(air_t_k, intake_p_pa, engine.geometry.effective_compression_ratio())?;
+    let with_walls = CompressionInput { heat_transfer_multiplier: wall_multiplier(engine.combustion), ..base };
+    let walls = compression::compress(&with_walls)?;
+    let with_leak = CompressionInput { leak_area_m2, ..with_walls };
+    let full = compression::compress(&with_leak)?;
+    let walls_t_k = charge_t_k(&walls, engine.combustion);
+    let full_t_k = charge_t_k(&full, engine.combustion);
+    let evaporation_loss_k = evaporation::evaporation_cooling_k(
+        calibration::CRANKING_AIR_FUEL_RATIO,
+        fuel_t_k,
+        full_t_k,
+        air::cv_j_per_kg_k(full_t_k),
+    )?;
+
+    // Intake heater: the same chain from a warmer intake; its gain is the difference it makes.
+    let (intake_heater_gain_k, tdc) = if night.aids.intake_heater_w > 0.0 {
+        let flow_kg_s = aids::cranking_air_mass_flow_kg_s(
+            engine.geometry.displacement_m3(),
+            crank_rpm,
+            intake_p_pa,
+            air_t_k,
+            aids::DEFAULT_CRANKING_VOLUMETRIC_EFFICIENCY,
+            air::R_AIR_J_PER_KG_K,
+        )?;
+        let rise_k = aids::intake_heater_rise_k(
+            night.aids.intake_heater_w,
+            aids::DEFAULT_INTAKE_HEATER_EFFICIENCY,
+            flow_kg_s,
+            air::cp_j_per_kg_k(air_t_k),
+        )?;
+        let heated = compression::compress(&CompressionInput { intake_t_k: air_t_k + rise_k, ..with_leak })?;
+        let heated_t_k = charge_t_k(&heated, engine.combustion);
+        let heated_evap_k = evaporation::evaporation_cooling_k(
+            calibration::CRANKING_AIR_FUEL_RATIO,
+            fuel_t_k,
+            heated_t_k,
+            air::cv_j_per_kg_k(heated_t_k),
+        )?;
+        ((heated_t_k - heated_evap_k) - (full_t_k - evaporation_loss_k), heated)
+    } else {
+        (0.0, full)
+    };
+    let glow_plug_gain_k = match night.aids.glow_plugs {
+        Some(g) => aids::glow_plug_gain_k(&g, night.aids.glow_preheat_s)?,
+        None => 0.0,
+    };
+    let wall_loss_k = ideal_end_t_k - walls_t_k;
+    let leakage_loss_k = walls_t_k - full_t_k;
+    let predicted_end_t_k = ideal_end_t_k - wall_loss_k - leakage_loss_k - evaporation_loss_k
+        + intake_heater_gain_k
+        + glow_plug_gain_k;
+    let window_s = ignition::crank_window_s(engine.ignition_window_deg, crank_rpm);
+    let required_t_k = ignition::required_temperature_k(
+        night.options.delay_correlation,
+        tdc.tdc_p_pa,
+        window_s,
+        cetane_number,
+        engine.geometry.mean_piston_speed_mps(crank_rpm),
+        crank_rpm,
+    )?;
+    Ok(HeatBudget {
+        intake_t_k: air_t_k,
+        ideal_end_t_k,
+        wall_loss_k,
+        leakage_loss_k,
+        evaporation_loss_k,
+        intake_heater_gain_k,
+        glow_plug_gain_k,
+        predicted_end_t_k,
+        required_t_k,
+        end_p_pa: tdc.tdc_p_pa,
+        compression_gauge_pa: full.peak_p_pa - intake_p_pa,
+    })
+}
+
+/// Fuel temperatures at every forecast step boundary after the start, and at departure.
+fn fuel_path(
+    night: &VehicleNight,
+    nodes: &Nodes,
+    start: &StartState,
+) -> Result<Vec<FuelTemperatureSample>, ModelError> {
+    let f = night.forecast.view();
+    let mut path = Vec::with_capacity(night.forecast.hours.len() + 2);
+    let mut sample = FuelTemperatureSample {
+        at_s: start.at_s,
+        tank_t_k: start.tank_t_k,
+        line_t_k: line_t_k(start.tank_t_k, start.filter_t_k),
+        filter_t_k: start.filter_t_k,
+    };
+    path.push(sample);
+    let mut k = ((start.at_s - f.start_s) / f.step_s).floor() as usize + 1;
+    loop {
+        let next_s = (f.start_s + k as f64 * f.step_s).min(night.departure_s);
+        if next_s <= sample.at_s {
+            break;
+        }
+        // Exact piecewise solution: chaining from the previous sample equals solving from the start.
+        let tank_t_k =
+            soak::node_temperature_k(&nodes.tank, sample.tank_t_k, sample.at_s, &f, None, next_s)?;
+        let filter_t_k =
+            soak::node_temperature_k(&nodes.filter, sample.filter_t_k, sample.at_s, &f, None, next_s)?;
+        sample = FuelTemperatureSample {
+            at_s: next_s,
+            tank_t_k,
+            line_t_k: line_t_k(tank_t_k, filter_t_k),
+            filter_t_k,
+        };
+        path.push(sample);
+        k += 1;
+    }
+    Ok(path)
+}
+
+/// The line from tank to filter runs along the frame between the two (estimate: their mean).
+fn line_t_k(tank_t_k: f64, filter_t_k: f64) -> f64 {
+    0.5 * (tank_t_k + filter_t_k)
+}
+
+fn margin_path(
+    night: &VehicleNight,
+    nodes: &Nodes,
+    start: &StartState,
+    heater: Option<&HeaterSchedule>,
+    soc: f64,
+) -> Result<Vec<MarginPoint>, ModelError> {
+    let f = night.forecast.view();
+    let mut out = Vec::with_capacity(night.forecast.hours.len() + 1);
+    for k in 0..=night.forecast.hours.len() {
+        let at_s = f.start_s + k as f64 * f.step_s;
+        if at_s < start.at_s {
+            continue;
+        }
+        let at_s = at_s.min(f.covered_until_s());
+        let p = start_point(night, nodes, start, heater, soc, at_s)?;
+        out.push(MarginPoint { at_s, margin_k: p.budget.margin_k() });
+    }
+    Ok(out)
+}

@@ -39,9 +39,10 @@ pub mod ignition;
 pub mod fuel;
 pub mod gel_risk;
 
-// The assembled assessment.
+// The assembled assessment and the decisions built on it.
 pub mod archetypes;
 pub mod assess;
+pub mod plug_in_plan;
 
 pub mod constants;
 pub mod error;
