@@ -1,1 +1,11 @@
-//! startmargin-demo (under construction)
+//! Demo clients of the startmargin API. The `evening-run` binary assesses the invented fleet of
+//! an invented municipal depot through the SDK over real gRPC, prints a table (or JSON lines) and
+//! writes two SVG charts. The modules are a library so that their tests run without a server.
+
+pub mod chart;
+pub mod console;
+pub mod report;
+pub mod run;
+pub mod scenario;
+pub mod svg;
+pub mod table;

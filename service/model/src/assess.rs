@@ -341,10 +341,7 @@ fn start_state(night: &VehicleNight) -> Result<StartState, ModelError> {
     if at_s > night.departure_s {
         return Err(ModelError::Inconsistent("telemetry is later than the departure"));
     }
-    let hour = f.at(at_s).ok_or(ModelError::ForecastTooShort {
-        covered_until_s: f.covered_until_s(),
-        requested_s: at_s,
-    })?;
+    let hour = forecast_step(&f, at_s)?;
     let air_t_k = t.ambient_t_k.unwrap_or(hour.air_t_k);
     let engine_t_k = t.coolant_t_k.or(t.oil_t_k).unwrap_or(air_t_k);
     // A battery under the hood or in a box starts between the engine and the air (estimate).
@@ -355,6 +352,18 @@ fn start_state(night: &VehicleNight) -> Result<StartState, ModelError> {
         FilterMount::Frame => tank_t_k,
     };
     Ok(StartState { at_s, air_t_k, engine_t_k, battery_t_k, tank_t_k, filter_t_k })
+}
+
+/// The forecast step holding at `at_s`; the end of the forecast belongs to its last step (a
+/// departure exactly at the end is covered).
+fn forecast_step<'a>(f: &'a Forecast<'_>, at_s: f64) -> Result<&'a ForecastHour, ModelError> {
+    let too_short =
+        ModelError::ForecastTooShort { covered_until_s: f.covered_until_s(), requested_s: at_s };
+    match f.at(at_s) {
+        Some(h) => Ok(h),
+        None if at_s == f.covered_until_s() => f.hours.last().ok_or(too_short),
+        None => Err(too_short),
+    }
 }
 
 fn heater_schedule(night: &VehicleNight) -> Option<HeaterSchedule> {
@@ -498,10 +507,7 @@ fn start_point(
     let battery_t_k = t(&nodes.battery, start.battery_t_k, None)?;
     let fuel_tank_t_k = t(&nodes.tank, start.tank_t_k, None)?;
     let fuel_filter_t_k = t(&nodes.filter, start.filter_t_k, None)?;
-    let hour = f.at(at_s).ok_or(ModelError::ForecastTooShort {
-        covered_until_s: f.covered_until_s(),
-        requested_s: at_s,
-    })?;
+    let hour = forecast_step(&f, at_s)?;
     // Between the telemetry's own ambient and the forecast, the forecast holds at departure.
     let air_t_k = hour.air_t_k;
     let soaked = SoakedState { engine_t_k, battery_t_k, fuel_tank_t_k, fuel_filter_t_k, air_t_k };

@@ -150,8 +150,10 @@ fn validate(input: &CompressionInput) -> Result<(), ModelError> {
         "intake_t_k",
         input.intake_t_k,
         200.0,
-        400.0,
-        "intake charge must be 200–400 K",
+        600.0,
+        // Up to 600 K: an intake-air heater can raise a cranking engine's slow air stream by
+        // well over 100 K.
+        "intake charge must be 200–600 K",
     )?;
     check_range(
         "intake_p_pa",

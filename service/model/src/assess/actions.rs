@@ -129,6 +129,10 @@ pub fn latest_plug_in_s(night: &VehicleNight, target_margin_k: f64) -> Result<Op
     let margin_at = |t: f64| -> Result<f64, ModelError> {
         Ok(margin_with(night, |n| n.block_heater_plan = Some((t, dep_s)))?.margin_k)
     };
+    if margin_with(night, |n| n.block_heater_plan = None)?.margin_k >= target_margin_k {
+        // The target is met without the heater: no plug-in needed.
+        return Ok(None);
+    }
     let all_night = margin_at(start_s)?;
     if all_night < target_margin_k {
         // Even all night is not enough: plug in now for the most it can give.
@@ -214,7 +218,11 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
             let charged = margin_with(night, |n| { n.telemetry.battery_rest_v = None; n.battery.state_of_charge = Some(1.0); })?;
             out.push(Action {
                 kind: ActionKind::ChargeBattery,
-                summary: format!("Charge the battery tonight (now at {:.0} %) or fit a charged one.", a.state_of_charge * 100.0),
+                summary: if night.telemetry.battery_rest_v.is_some() || night.battery.state_of_charge.is_some() {
+                    format!("Charge the battery tonight (now at {:.0} %) or fit a charged one.", a.state_of_charge * 100.0)
+                } else {
+                    format!("Check and charge the battery tonight (charge unknown, {:.0} % assumed) or fit a charged one.", a.state_of_charge * 100.0)
+                },
                 expected_margin_gain_k: charged.margin_k - base,
                 act_by_s: Some(night.departure_s - 4.0 * 3600.0),
                 energy_j: 0.0,

@@ -1,0 +1,528 @@
+//! The `startmargin.v1.StartMarginService` implementation: transport only. Requests are validated,
+//! converted and assessed by [`crate::convert`] on a small dedicated pool of compute threads, so
+//! the async runtime never runs physics; a global semaphore bounds the assessments in flight
+//! (unary calls beyond it are refused at once with RESOURCE_EXHAUSTED, fleet streams wait).
+//!
+//! A fleet stream keeps its zone forecasts and depot outlets, runs its vehicles concurrently (a
+//! bounded number in flight, each holding a slot until the reader takes its result, so a slow
+//! reader slows the stream instead of growing memory), answers each vehicle as soon as it is
+//! computed, turns a bad item into a per-item `google.rpc.Status` without ending the stream, and
+//! when the input ends sends each depot's plug-in plan after every vehicle's result.
+
+use std::collections::HashMap;
+use std::panic::{AssertUnwindSafe, catch_unwind};
+use std::pin::Pin;
+use std::sync::{Arc, Mutex, OnceLock, mpsc as std_mpsc};
+use std::time::Duration;
+
+use startmargin_model::plug_in_plan::{DepotLimits, PlugInCandidate};
+use startmargin_proto::v1 as pb;
+use startmargin_proto::v1::assess_fleet_request::Item;
+use startmargin_proto::v1::assess_fleet_response::Outcome;
+use tokio::sync::{OwnedSemaphorePermit, Semaphore, mpsc, oneshot};
+use tokio::time::Instant;
+use tokio_stream::wrappers::ReceiverStream;
+use tokio_stream::{Stream, StreamExt as _};
+use tokio_util::sync::CancellationToken;
+use tonic::{Request, Response, Status, Streaming};
+use tracing::{Instrument, debug, info, info_span};
+
+use crate::config::Config;
+use crate::convert::{self, Policy, ZoneForecasts};
+use crate::error::{ApiError, to_rpc_status};
+
+/// Field path prefix of the night in an AssessVehicle request.
+pub const NIGHT_PATH: &str = "night";
+/// Field path prefix of a vehicle item in an AssessFleet request.
+pub const FLEET_VEHICLE_PATH: &str = "vehicle";
+/// Field path prefix of a zone forecast item in an AssessFleet request.
+pub const FLEET_ZONE_PATH: &str = "zone_forecast";
+/// Field path prefix of a depot outlets item in an AssessFleet request.
+pub const FLEET_DEPOT_PATH: &str = "depot_outlets";
+
+/// Message of the status that ends open streams when the server shuts down.
+pub const DRAINING_MESSAGE: &str = "server is draining";
+
+type Job = Box<dyn FnOnce() + Send + 'static>;
+
+/// A fixed set of threads that run CPU-bound work off the async runtime.
+#[derive(Debug)]
+struct ComputePool {
+    jobs: std_mpsc::Sender<Job>,
+}
+
+impl ComputePool {
+    /// Starts `threads` workers; they stop when the pool is dropped and the queue is empty.
+    fn new(threads: usize) -> std::io::Result<Self> {
+        let (jobs, queue) = std_mpsc::channel::<Job>();
+        let queue = Arc::new(Mutex::new(queue));
+        for i in 0..threads.max(1) {
+            let queue = Arc::clone(&queue);
+            std::thread::Builder::new()
+                .name(format!("startmargin-compute-{i}"))
+                .spawn(move || {
+                    loop {
+                        // The lock is held only while taking the next job.
+                        let job = match queue.lock() {
+                            Ok(rx) => rx.recv(),
+                            Err(_) => return,
+                        };
+                        match job {
+                            Ok(job) => job(),
+                            Err(_) => return,
+                        }
+                    }
+                })?;
+        }
+        Ok(Self { jobs })
+    }
+
+    /// Queues `job` for a compute thread. The job must catch its own panics.
+    fn submit(&self, job: Job) -> Result<(), ApiError> {
+        self.jobs
+            .send(job)
+            .map_err(|_| ApiError::Unavailable("compute pool stopped".to_string()))
+    }
+
+    /// Runs `f` on a compute thread. A panic in `f` becomes an internal error, never a crash.
+    async fn run<T, F>(&self, f: F) -> Result<T, ApiError>
+    where
+        T: Send + 'static,
+        F: FnOnce() -> Result<T, ApiError> + Send + 'static,
+    {
+        let (tx, rx) = oneshot::channel();
+        self.submit(Box::new(move || {
+            let result = catch_unwind(AssertUnwindSafe(f))
+                .unwrap_or_else(|_| Err(ApiError::Internal("the assessment panicked".to_string())));
+            // The caller may have given up (deadline, drain): then nobody needs the result.
+            let _ = tx.send(result);
+        }))?;
+        rx.await
+            .map_err(|_| ApiError::Internal("compute thread ended without a result".to_string()))?
+    }
+}
+
+/// Limits and policy of the service, taken from the configuration.
+#[derive(Debug, Clone, Copy)]
+struct Limits {
+    request_timeout: Duration,
+    stream_idle_timeout: Duration,
+    max_fleet_items: u64,
+    fleet_in_flight: usize,
+    policy: Policy,
+}
+
+/// The StartMarginService: conversion and transport around the model, with limits and drain.
+#[derive(Debug)]
+pub struct StartMarginApi {
+    pool: Arc<ComputePool>,
+    in_flight: Arc<Semaphore>,
+    limits: Limits,
+    draining: CancellationToken,
+}
+
+static DESCRIBE: OnceLock<pb::DescribeModelResponse> = OnceLock::new();
+
+impl StartMarginApi {
+    /// Builds the service from the configuration; cancelling `draining` ends every open stream
+    /// with UNAVAILABLE.
+    pub fn new(config: &Config, draining: CancellationToken) -> std::io::Result<Self> {
+        Ok(Self {
+            pool: Arc::new(ComputePool::new(config.effective_compute_threads())?),
+            in_flight: Arc::new(Semaphore::new(config.concurrency_limit)),
+            limits: Limits {
+                request_timeout: config.request_timeout(),
+                stream_idle_timeout: config.stream_idle_timeout(),
+                max_fleet_items: config.max_fleet_items_per_stream,
+                fleet_in_flight: config.fleet_in_flight_per_stream(),
+                policy: config.policy(),
+            },
+            draining,
+        })
+    }
+}
+
+#[tonic::async_trait]
+impl pb::start_margin_service_server::StartMarginService for StartMarginApi {
+    async fn assess_vehicle(
+        &self,
+        request: Request<pb::AssessVehicleRequest>,
+    ) -> Result<Response<pb::AssessVehicleResponse>, Status> {
+        let span = info_span!("assess_vehicle");
+        async move {
+            let night = request.into_inner().night.ok_or_else(|| {
+                ApiError::field(
+                    NIGHT_PATH,
+                    "is required: the vehicle, its forecast and its departure",
+                )
+            })?;
+            let permit = Arc::clone(&self.in_flight)
+                .try_acquire_owned()
+                .map_err(|_| {
+                    ApiError::ResourceExhausted(
+                        "too many assessments in flight; retry with backoff".to_string(),
+                    )
+                })?;
+            debug!(
+                vehicle_id = night.vehicle.as_ref().map_or("", |v| v.vehicle_id.as_str()),
+                "assessing"
+            );
+            let policy = self.limits.policy;
+            let job = self.pool.run(move || {
+                let _permit = permit;
+                convert::assess_pb_with(&night, NIGHT_PATH, &ZoneForecasts::new(), &policy)
+            });
+            let assessment = match tokio::time::timeout(self.limits.request_timeout, job).await {
+                Ok(result) => result?,
+                Err(_) => {
+                    return Err(Status::deadline_exceeded(format!(
+                        "the assessment took longer than the server's {} s request timeout",
+                        self.limits.request_timeout.as_secs_f64()
+                    )));
+                }
+            };
+            Ok(Response::new(pb::AssessVehicleResponse {
+                assessment: Some(assessment),
+            }))
+        }
+        .instrument(span)
+        .await
+        .inspect_err(|status| debug!(code = ?status.code(), "assess_vehicle refused"))
+    }
+
+    type AssessFleetStream = FleetResponses;
+
+    async fn assess_fleet(
+        &self,
+        request: Request<Streaming<pb::AssessFleetRequest>>,
+    ) -> Result<Response<Self::AssessFleetStream>, Status> {
+        let slots = self.limits.fleet_in_flight;
+        // Every result holds a slot until the reader takes it, so the channel never holds more
+        // than `slots` results; the one extra place is for the stream's final status.
+        let (tx, rx) = mpsc::channel(slots + 1);
+        let stream = FleetStream {
+            pool: Arc::clone(&self.pool),
+            in_flight: Arc::clone(&self.in_flight),
+            stream_slots: Arc::new(Semaphore::new(slots)),
+            slots,
+            limits: self.limits,
+            draining: self.draining.clone(),
+            tx,
+            zones: Arc::new(HashMap::new()),
+            depots: HashMap::new(),
+            candidates: Arc::new(Mutex::new(HashMap::new())),
+        };
+        tokio::spawn(
+            stream
+                .run(request.into_inner())
+                .instrument(info_span!("assess_fleet")),
+        );
+        let responses = ReceiverStream::new(rx).map(|(result, slot)| {
+            drop(slot);
+            result
+        });
+        Ok(Response::new(Box::pin(responses)))
+    }
+
+    async fn describe_model(
+        &self,
+        _request: Request<pb::DescribeModelRequest>,
+    ) -> Result<Response<pb::DescribeModelResponse>, Status> {
+        if let Some(cached) = DESCRIBE.get() {
+            return Ok(Response::new(cached.clone()));
+        }
+        // The first call computes the archetypes' limits: physics, so on the compute pool.
+        let answer = self
+            .pool
+            .run(|| Ok(DESCRIBE.get_or_init(convert::describe_model).clone()))
+            .instrument(info_span!("describe_model"))
+            .await?;
+        Ok(Response::new(answer))
+    }
+}
+
+/// The results of a fleet stream, in the order they are computed.
+pub type FleetResponses =
+    Pin<Box<dyn Stream<Item = Result<pb::AssessFleetResponse, Status>> + Send>>;
+
+/// A result on its way to the reader, with the stream slot it holds until the reader takes it.
+type Sent = (
+    Result<pb::AssessFleetResponse, Status>,
+    Option<OwnedSemaphorePermit>,
+);
+
+/// Plug-in candidates of a stream's vehicles by depot id: (vehicle id, candidate).
+type Candidates = Arc<Mutex<HashMap<String, Vec<(String, PlugInCandidate)>>>>;
+
+/// How a fleet stream's input loop ends.
+enum End {
+    /// The client closed its side: the last results, then the depots' plans, then OK.
+    Completed,
+    /// End now with this status (results still computing are dropped).
+    Abort(Status),
+    /// Deliver the results in flight, then end with this status.
+    AfterInFlight(Status),
+}
+
+/// One AssessFleet call: its zone forecasts, depots, vehicles in flight and output channel.
+struct FleetStream {
+    pool: Arc<ComputePool>,
+    in_flight: Arc<Semaphore>,
+    stream_slots: Arc<Semaphore>,
+    slots: usize,
+    limits: Limits,
+    draining: CancellationToken,
+    tx: mpsc::Sender<Sent>,
+    /// Zone forecasts; copy-on-write, so vehicles in flight keep the ones they were sent against.
+    zones: Arc<ZoneForecasts>,
+    /// Depot outlets by depot id, with the item id the plan answers.
+    depots: HashMap<String, (String, DepotLimits)>,
+    /// Plug-in candidates, filled by the compute threads.
+    candidates: Candidates,
+}
+
+impl FleetStream {
+    async fn run(mut self, mut inbound: Streaming<pb::AssessFleetRequest>) {
+        let mut items: u64 = 0;
+        // A slot is taken before reading the next item, so an item is only read when it can run
+        // and its result has a place in the output channel.
+        let mut slot: Option<OwnedSemaphorePermit> = None;
+        let idle = tokio::time::sleep(self.limits.stream_idle_timeout);
+        tokio::pin!(idle);
+
+        let end = loop {
+            tokio::select! {
+                biased;
+                () = self.draining.cancelled() => break End::Abort(draining_status()),
+                permit = Arc::clone(&self.stream_slots).acquire_owned(), if slot.is_none() => match permit {
+                    Ok(p) => slot = Some(p),
+                    Err(_) => break End::Abort(Status::internal("fleet stream slots closed")),
+                },
+                message = inbound.message(), if slot.is_some() => {
+                    idle.as_mut().reset(Instant::now() + self.limits.stream_idle_timeout);
+                    match message {
+                        Ok(Some(request)) => {
+                            items += 1;
+                            if items > self.limits.max_fleet_items {
+                                break End::AfterInFlight(ApiError::ResourceExhausted(format!(
+                                    "more than {} items on one stream; open a new stream for the rest",
+                                    self.limits.max_fleet_items
+                                )).into());
+                            }
+                            let Some(permit) = slot.take() else {
+                                break End::Abort(Status::internal("fleet item read without a slot"));
+                            };
+                            if let Err(end) = self.handle(request, permit).await {
+                                break end;
+                            }
+                        }
+                        Ok(None) => break End::Completed,
+                        // The client went away or sent a message that cannot be decoded (too large…).
+                        Err(status) => break End::Abort(status),
+                    }
+                }
+                () = &mut idle => {
+                    // Idle means no request and nothing in flight or unread for the whole period.
+                    if self.stream_slots.available_permits() + usize::from(slot.is_some()) < self.slots {
+                        idle.as_mut().reset(Instant::now() + self.limits.stream_idle_timeout);
+                    } else {
+                        break End::Abort(ApiError::Unavailable(format!(
+                            "stream idle for {} s; open a new stream",
+                            self.limits.stream_idle_timeout.as_secs_f64()
+                        )).into());
+                    }
+                }
+            }
+        };
+        drop(slot);
+
+        let status = match end {
+            End::Completed if self.depots.is_empty() => None,
+            End::Completed => match self.wait_for_results().await {
+                Ok(()) => self.send_plans().await.err(),
+                Err(status) => status,
+            },
+            End::Abort(status) => Some(status),
+            End::AfterInFlight(status) => match self.wait_for_results().await {
+                Ok(()) => Some(status),
+                Err(drained) => drained.or(Some(status)),
+            },
+        };
+        match &status {
+            None => info!(items, "fleet stream input ended"),
+            Some(s) => info!(items, code = ?s.code(), message = s.message(), "fleet stream ended"),
+        }
+        if let Some(status) = status {
+            // There is always room: results hold at most `slots` places and the channel has one
+            // more. Results still computing land after the status and are dropped with it.
+            let _ = self.tx.try_send((Err(status), None));
+        }
+        // Dropping `tx` here (and in each job as it finishes) closes the stream.
+    }
+
+    /// Waits until the reader has taken every result (every slot is back). `Err(Some(status))`
+    /// when the server drains meanwhile, `Err(None)` when the reader stops reading for the idle
+    /// timeout.
+    async fn wait_for_results(&self) -> Result<(), Option<Status>> {
+        let all = u32::try_from(self.slots).unwrap_or(u32::MAX);
+        tokio::select! {
+            biased;
+            () = self.draining.cancelled() => Err(Some(draining_status())),
+            taken = self.stream_slots.acquire_many(all) => {
+                taken.map(drop).map_err(|_| Some(Status::internal("fleet stream slots closed")))
+            }
+            () = tokio::time::sleep(self.limits.stream_idle_timeout) => Err(None),
+        }
+    }
+
+    /// Computes and sends each depot's plug-in plan. `Err` holds the status that ends the stream.
+    async fn send_plans(&mut self) -> Result<(), Status> {
+        let depots = std::mem::take(&mut self.depots);
+        let candidates = std::mem::take(
+            &mut *self
+                .candidates
+                .lock()
+                .map_err(|_| Status::internal("candidates lost"))?,
+        );
+        let plans = self
+            .pool
+            .run(move || {
+                let mut plans: Vec<(String, pb::PlugInPlan)> = depots
+                    .into_iter()
+                    .map(|(depot_id, (item_id, limits))| {
+                        let (vehicles, found): (Vec<String>, Vec<PlugInCandidate>) = candidates
+                            .get(&depot_id)
+                            .map(|c| c.iter().cloned().unzip())
+                            .unwrap_or_default();
+                        let plan = convert::plan_to_pb(&depot_id, &limits, &vehicles, &found);
+                        (item_id, plan)
+                    })
+                    .collect();
+                plans.sort_by(|a, b| a.1.depot_id.cmp(&b.1.depot_id));
+                Ok(plans)
+            })
+            .await?;
+        for (item_id, plan) in plans {
+            debug!(
+                depot_id = plan.depot_id,
+                chosen = plan.plug_ins.len(),
+                "plug-in plan"
+            );
+            let response = pb::AssessFleetResponse {
+                item_id,
+                vehicle_id: String::new(),
+                outcome: Some(Outcome::PlugInPlan(plan)),
+            };
+            tokio::select! {
+                biased;
+                () = self.draining.cancelled() => return Err(draining_status()),
+                sent = self.tx.send((Ok(response), None)) => if sent.is_err() { return Ok(()) },
+            }
+        }
+        Ok(())
+    }
+
+    /// Starts the work of one item; `permit` travels with its result (if any) to the reader.
+    /// Returns `Err` when the stream must end instead.
+    async fn handle(
+        &mut self,
+        request: pb::AssessFleetRequest,
+        permit: OwnedSemaphorePermit,
+    ) -> Result<(), End> {
+        let item_id = request.item_id;
+        match request.item {
+            Some(Item::ZoneForecast(zone)) => {
+                match convert::zone_forecast_from_pb(&zone, FLEET_ZONE_PATH) {
+                    Ok((zone_id, series)) => {
+                        debug!(zone_id, "zone forecast");
+                        Arc::make_mut(&mut self.zones).insert(zone_id, series);
+                    }
+                    Err(e) => self.send_error(permit, item_id, e),
+                }
+            }
+            Some(Item::DepotOutlets(depot)) => {
+                match convert::depot_from_pb(&depot, FLEET_DEPOT_PATH) {
+                    Ok((depot_id, limits)) => {
+                        debug!(depot_id, outlets = limits.outlets, "depot outlets");
+                        self.depots.insert(depot_id, (item_id, limits));
+                    }
+                    Err(e) => self.send_error(permit, item_id, e),
+                }
+            }
+            Some(Item::Vehicle(night)) => {
+                let global = tokio::select! {
+                    biased;
+                    () = self.draining.cancelled() => return Err(End::Abort(draining_status())),
+                    global = Arc::clone(&self.in_flight).acquire_owned() => global
+                        .map_err(|_| End::Abort(Status::internal("in-flight limit closed")))?,
+                };
+                let vehicle_id = night
+                    .vehicle
+                    .as_ref()
+                    .map(|v| v.vehicle_id.clone())
+                    .unwrap_or_default();
+                debug!(item_id, vehicle_id, "vehicle");
+                let zones = Arc::clone(&self.zones);
+                let candidates = Arc::clone(&self.candidates);
+                let policy = self.limits.policy;
+                let tx = self.tx.clone();
+                self.pool
+                    .submit(Box::new(move || {
+                        let decided = catch_unwind(AssertUnwindSafe(|| {
+                            convert::decide(&night, FLEET_VEHICLE_PATH, &zones, &policy)
+                        }))
+                        .unwrap_or_else(|_| {
+                            Err(ApiError::Internal("the assessment panicked".to_string()))
+                        });
+                        drop(global);
+                        let outcome = match decided {
+                            Ok(decided) => {
+                                if let Some(candidate) = decided.plug_in
+                                    && let Ok(mut by_depot) = candidates.lock()
+                                {
+                                    by_depot
+                                        .entry(night.depot_id.clone())
+                                        .or_default()
+                                        .push((vehicle_id.clone(), candidate));
+                                }
+                                Outcome::Assessment(decided.message)
+                            }
+                            Err(e) => Outcome::Error(to_rpc_status(e)),
+                        };
+                        let response = pb::AssessFleetResponse {
+                            item_id,
+                            vehicle_id,
+                            outcome: Some(outcome),
+                        };
+                        // Never full (the slot reserves the place); closed only when the reader left.
+                        let _ = tx.try_send((Ok(response), Some(permit)));
+                    }))
+                    .map_err(|e| End::Abort(e.into()))?;
+            }
+            None => self.send_error(
+                permit,
+                item_id,
+                ApiError::field(
+                    "item",
+                    "one of zone_forecast, vehicle or depot_outlets is required",
+                ),
+            ),
+        }
+        Ok(())
+    }
+
+    /// Answers an item with its error.
+    fn send_error(&self, permit: OwnedSemaphorePermit, item_id: String, e: ApiError) {
+        debug!(item_id, code = ?e.code(), "item refused");
+        let response = pb::AssessFleetResponse {
+            item_id,
+            vehicle_id: String::new(),
+            outcome: Some(Outcome::Error(to_rpc_status(e))),
+        };
+        let _ = self.tx.try_send((Ok(response), Some(permit)));
+    }
+}
+
+fn draining_status() -> Status {
+    ApiError::Unavailable(DRAINING_MESSAGE.to_string()).into()
+}

@@ -1,0 +1,1127 @@
+//! The API boundary: validates protobuf requests and converts them to the model's plain Rust types
+//! (with the field path of every bad value), runs the model, and converts the answer back.
+//! The API speaks the trade's units (°C, kPa, volts, litres, percent); the model speaks SI.
+//! No physics here: ranges checked are the physical validity ranges the model documents.
+
+use std::collections::HashMap;
+use std::sync::{Arc, OnceLock};
+
+use prost_types::{Duration, Timestamp};
+use startmargin_model::aids::GlowPlugs;
+use startmargin_model::archetypes::{self, AidConfig, CombustionSystem, EngineOverrides};
+use startmargin_model::assess::{
+    self, AssessOptions, Assessment, BatteryConfig, ForecastSeries, FuelConfig, LimitingFactor,
+    Telemetry, VehicleNight,
+};
+use startmargin_model::constants::{STANDARD_ATMOSPHERE_PA, celsius_to_kelvin, kelvin_to_celsius};
+use startmargin_model::fuel::{
+    AdditiveTreatment, BiodieselFeedstock, ColdFlowProperties, FuelBase, FuelDescription,
+};
+use startmargin_model::gel_risk::{FuelPoint, GelRiskLevel};
+use startmargin_model::assess::actions::{Action, ActionKind, ActionPolicy};
+use startmargin_model::assess::outlook::{OutlookThresholds, StartOutlook};
+use startmargin_model::assess::uncertainty::{self, Method, UncertaintySource};
+use startmargin_model::ignition::DelayCorrelation;
+use startmargin_model::plug_in_plan::{self, DepotLimits, PlanMethod, PlugInCandidate};
+use startmargin_model::oil::SaeGrade;
+use startmargin_model::soak::{FilterMount, ForecastHour};
+use startmargin_proto::v1 as pb;
+
+use crate::error::{ApiError, FieldViolation};
+
+pub mod describe;
+mod grades;
+
+pub use describe::describe_model;
+
+/// Zone forecasts received on a fleet or watch stream, by zone id.
+pub type ZoneForecasts = HashMap<String, Arc<ForecastSeries>>;
+
+/// Longest vehicle or zone id accepted, bytes.
+pub const MAX_ID_LEN: usize = 128;
+
+/// Collects every field violation of a request, so that a caller fixes them all at once.
+#[derive(Debug, Default)]
+struct Violations(Vec<FieldViolation>);
+
+impl Violations {
+    fn add(&mut self, field: impl Into<String>, description: impl Into<String>) {
+        self.0.push(FieldViolation {
+            field: field.into(),
+            description: description.into(),
+        });
+    }
+
+    /// Checks a finite value within [min, max]; returns it either way so conversion can go on.
+    fn range(&mut self, field: &str, value: f64, min: f64, max: f64, unit: &str) -> f64 {
+        if !value.is_finite() {
+            self.add(field, format!("must be a finite number, got {value}"));
+        } else if value < min || value > max {
+            self.add(
+                field,
+                format!("{value} is outside the valid range {min} to {max} {unit}"),
+            );
+        }
+        value
+    }
+
+    fn opt_range(
+        &mut self,
+        field: &str,
+        value: Option<f64>,
+        min: f64,
+        max: f64,
+        unit: &str,
+    ) -> Option<f64> {
+        value.map(|v| self.range(field, v, min, max, unit))
+    }
+
+    fn id(&mut self, field: &str, id: &str, required: bool) {
+        if required && id.is_empty() {
+            self.add(field, "must not be empty");
+        } else if id.len() > MAX_ID_LEN {
+            self.add(field, format!("longer than {MAX_ID_LEN} bytes"));
+        }
+    }
+
+    fn timestamp(&mut self, field: &str, t: Option<&Timestamp>) -> Option<f64> {
+        match t {
+            None => {
+                self.add(field, "is required");
+                None
+            }
+            Some(t) => self.timestamp_value(field, t),
+        }
+    }
+
+    fn timestamp_value(&mut self, field: &str, t: &Timestamp) -> Option<f64> {
+        // Years 1970–2200: anything else is a unit mistake (milliseconds sent as seconds…).
+        if !(0..=7_258_118_400).contains(&t.seconds) || !(0..1_000_000_000).contains(&t.nanos) {
+            self.add(
+                field,
+                "must be a UTC time between 1970 and 2200 with nanos in 0..1e9",
+            );
+            return None;
+        }
+        Some(t.seconds as f64 + f64::from(t.nanos) * 1e-9)
+    }
+
+    fn finish<T>(self, value: T) -> Result<T, ApiError> {
+        if self.0.is_empty() {
+            Ok(value)
+        } else {
+            Err(ApiError::InvalidArgument(self.0))
+        }
+    }
+}
+
+/// Converts seconds on the model's axis back to a protobuf timestamp.
+pub fn timestamp(at_s: f64) -> Timestamp {
+    let seconds = at_s.floor();
+    Timestamp {
+        seconds: seconds as i64,
+        nanos: ((at_s - seconds) * 1e9).round().min(999_999_999.0) as i32,
+    }
+}
+
+fn duration_s(v: &mut Violations, field: &str, d: Option<&Duration>) -> f64 {
+    match d {
+        None => 3600.0,
+        Some(d) => {
+            let s = d.seconds as f64 + f64::from(d.nanos) * 1e-9;
+            v.range(field, s, 300.0, 21_600.0, "s (5 min to 6 h)")
+        }
+    }
+}
+
+/// Validates and converts a forecast; `path` is its field path.
+fn forecast_from_pb(v: &mut Violations, pb: &pb::Forecast, path: &str) -> ForecastSeries {
+    let start_s = v
+        .timestamp(&format!("{path}.start_time"), pb.start_time.as_ref())
+        .unwrap_or(0.0);
+    let step_s = duration_s(v, &format!("{path}.step"), pb.step.as_ref());
+    if pb.points.is_empty() {
+        v.add(format!("{path}.points"), "must hold at least one point");
+    } else if pb.points.len() > assess::MAX_FORECAST_STEPS {
+        v.add(
+            format!("{path}.points"),
+            format!(
+                "at most {} points, got {}",
+                assess::MAX_FORECAST_STEPS,
+                pb.points.len()
+            ),
+        );
+    }
+    let mut hours = Vec::with_capacity(pb.points.len().min(assess::MAX_FORECAST_STEPS));
+    let mut air_spread_k = Vec::new();
+    let any_spread = pb.points.iter().any(|p| p.air_spread_k.is_some());
+    for (i, p) in pb
+        .points
+        .iter()
+        .take(assess::MAX_FORECAST_STEPS)
+        .enumerate()
+    {
+        let f = |name: &str| format!("{path}.points[{i}].{name}");
+        let air_c = v.range(&f("air_c"), p.air_c, -70.0, 50.0, "°C");
+        let wind_mps = v.range(&f("wind_mps"), p.wind_mps, 0.0, 60.0, "m/s");
+        let cloud_pct = v.range(&f("cloud_cover_pct"), p.cloud_cover_pct, 0.0, 100.0, "%");
+        hours.push(ForecastHour {
+            air_t_k: celsius_to_kelvin(air_c),
+            wind_mps,
+            cloud_fraction: cloud_pct / 100.0,
+        });
+        if any_spread {
+            match p.air_spread_k {
+                Some(s) => air_spread_k.push(v.range(&f("air_spread_k"), s, 0.0, 30.0, "K")),
+                None => v.add(f("air_spread_k"), "give a spread on every point or on none"),
+            }
+        }
+    }
+    let barometric_kpa = v.opt_range(
+        &format!("{path}.barometric_kpa"),
+        pb.barometric_kpa,
+        50.0,
+        110.0,
+        "kPa",
+    );
+    ForecastSeries {
+        start_s,
+        step_s,
+        hours,
+        air_spread_k,
+        barometric_pa: barometric_kpa.map_or(STANDARD_ATMOSPHERE_PA, |k| k * 1000.0),
+    }
+}
+
+/// Validates and converts a zone forecast (`path` = field path prefix, e.g. `zone_forecast`).
+pub fn zone_forecast_from_pb(
+    pb: &pb::ZoneForecast,
+    path: &str,
+) -> Result<(String, Arc<ForecastSeries>), ApiError> {
+    let mut v = Violations::default();
+    v.id(&format!("{path}.zone_id"), &pb.zone_id, true);
+    let series = match &pb.forecast {
+        Some(f) => Some(forecast_from_pb(&mut v, f, &format!("{path}.forecast"))),
+        None => {
+            v.add(format!("{path}.forecast"), "is required");
+            None
+        }
+    };
+    v.finish(())?;
+    Ok((
+        pb.zone_id.clone(),
+        Arc::new(series.unwrap_or_else(|| unreachable_forecast())),
+    ))
+}
+
+// Only reached when a violation was recorded above (and `finish` returned early).
+fn unreachable_forecast() -> ForecastSeries {
+    ForecastSeries {
+        start_s: 0.0,
+        step_s: 3600.0,
+        hours: Vec::new(),
+        air_spread_k: Vec::new(),
+        barometric_pa: STANDARD_ATMOSPHERE_PA,
+    }
+}
+
+fn combustion_from_pb(c: i32) -> Option<CombustionSystem> {
+    match pb::CombustionSystem::try_from(c).ok()? {
+        pb::CombustionSystem::Unspecified => None,
+        pb::CombustionSystem::DirectInjection => Some(CombustionSystem::DirectInjection),
+        pb::CombustionSystem::SwirlChamber => Some(CombustionSystem::SwirlChamber),
+        pb::CombustionSystem::Prechamber => Some(CombustionSystem::Prechamber),
+    }
+}
+
+/// Combustion system → API enum.
+pub fn combustion_to_pb(c: CombustionSystem) -> pb::CombustionSystem {
+    match c {
+        CombustionSystem::DirectInjection => pb::CombustionSystem::DirectInjection,
+        CombustionSystem::SwirlChamber => pb::CombustionSystem::SwirlChamber,
+        CombustionSystem::Prechamber => pb::CombustionSystem::Prechamber,
+    }
+}
+
+/// Starter power of a fully custom engine when not given: about 0.6 kW per litre (estimate from
+/// reference.md §8.5: 1.4–2.5 kW passenger cars, 4–9 kW heavy duty).
+const CUSTOM_STARTER_W_PER_L: f64 = 600.0;
+
+fn engine_from_pb(
+    v: &mut Violations,
+    e: &pb::EngineSpec,
+    aids: Option<&pb::StartAids>,
+    path: &str,
+) -> Option<(archetypes::EngineConfig, AidConfig)> {
+    let f = |name: &str| format!("{path}.{name}");
+    let mm = |v: &mut Violations, name: &str, x: Option<f64>, lo: f64, hi: f64| {
+        v.opt_range(&f(name), x, lo, hi, "mm").map(|x| x / 1000.0)
+    };
+    let overrides = EngineOverrides {
+        bore_m: mm(v, "bore_mm", e.bore_mm, 50.0, 250.0),
+        stroke_m: mm(v, "stroke_mm", e.stroke_mm, 50.0, 300.0),
+        con_rod_m: mm(v, "con_rod_mm", e.con_rod_mm, 80.0, 700.0),
+        compression_ratio: v.opt_range(
+            &f("compression_ratio"),
+            e.compression_ratio,
+            12.0,
+            26.0,
+            "",
+        ),
+        cylinders: e.cylinders.map(|c| {
+            if !(1..=16).contains(&c) {
+                v.add(f("cylinders"), format!("{c} is outside 1 to 16"));
+            }
+            c
+        }),
+        ivc_deg_abdc: v.opt_range(&f("ivc_deg_abdc"), e.ivc_deg_abdc, 0.0, 80.0, "°"),
+        combustion: combustion_from_pb(e.combustion_system),
+        min_start_speed_rpm: v.opt_range(
+            &f("min_start_speed_rpm"),
+            e.min_start_speed_rpm,
+            20.0,
+            400.0,
+            "rpm",
+        ),
+        measured_compression_gauge_pa: v
+            .opt_range(
+                &f("measured_compression_kpa"),
+                e.measured_compression_kpa,
+                800.0,
+                6_000.0,
+                "kPa",
+            )
+            .map(|k| k * 1000.0),
+        starter_power_w: v
+            .opt_range(&f("starter_power_kw"), e.starter_power_kw, 0.5, 15.0, "kW")
+            .map(|k| k * 1000.0),
+        heat_capacity_j_per_k: v
+            .opt_range(
+                &f("heat_capacity_kj_per_k"),
+                e.heat_capacity_kj_per_k,
+                10.0,
+                3_000.0,
+                "kJ/K",
+            )
+            .map(|k| k * 1000.0),
+        cooldown_time_constant_s: v
+            .opt_range(
+                &f("cooldown_time_constant_h"),
+                e.cooldown_time_constant_h,
+                0.25,
+                24.0,
+                "h",
+            )
+            .map(|h| h * 3600.0),
+    };
+    if pb::CombustionSystem::try_from(e.combustion_system).is_err() {
+        v.add(
+            f("combustion_system"),
+            format!("unknown value {}", e.combustion_system),
+        );
+    }
+    let (base_engine, base_aids) = if e.archetype_id.is_empty() {
+        // A fully specified engine: the core geometry is required; the rest starts from a generic
+        // direct-injection engine and is scaled where it depends on size.
+        for (name, given) in [
+            ("bore_mm", overrides.bore_m.is_some()),
+            ("stroke_mm", overrides.stroke_m.is_some()),
+            ("compression_ratio", overrides.compression_ratio.is_some()),
+            ("cylinders", overrides.cylinders.is_some()),
+        ] {
+            if !given {
+                v.add(f(name), "is required when archetype_id is empty");
+            }
+        }
+        let generic = archetypes::find("medium-di-i6").expect("built-in archetype");
+        (
+            generic.engine,
+            AidConfig {
+                glow_plugs: None,
+                glow_preheat_s: 0.0,
+                intake_heater_w: 0.0,
+                block_heater_w: 0.0,
+            },
+        )
+    } else {
+        match archetypes::find(&e.archetype_id) {
+            Some(a) => (a.engine, a.aids),
+            None => {
+                let ids: Vec<_> = archetypes::ARCHETYPES.iter().map(|a| a.id).collect();
+                v.add(
+                    f("archetype_id"),
+                    format!(
+                        "unknown archetype {:?}; known: {}",
+                        e.archetype_id,
+                        ids.join(", ")
+                    ),
+                );
+                return None;
+            }
+        }
+    };
+    let mut overrides = overrides;
+    if e.archetype_id.is_empty() && overrides.starter_power_w.is_none() {
+        if let (Some(b), Some(s), Some(c)) =
+            (overrides.bore_m, overrides.stroke_m, overrides.cylinders)
+        {
+            let litres = std::f64::consts::FRAC_PI_4 * b * b * s * f64::from(c) * 1000.0;
+            overrides.starter_power_w =
+                Some((CUSTOM_STARTER_W_PER_L * litres).clamp(1_000.0, 9_000.0));
+        }
+    }
+    let engine = match archetypes::apply_overrides(&base_engine, &overrides) {
+        Ok(engine) => engine,
+        Err(err) => {
+            if v.0.is_empty() {
+                v.add(path.to_string(), err.to_string());
+            }
+            return None;
+        }
+    };
+    let aids = aids_from_pb(v, aids, base_aids, &path.replace(".engine", ".aids"));
+    Some((engine, aids))
+}
+
+fn aids_from_pb(
+    v: &mut Violations,
+    a: Option<&pb::StartAids>,
+    base: AidConfig,
+    path: &str,
+) -> AidConfig {
+    let Some(a) = a else { return base };
+    let f = |name: &str| format!("{path}.{name}");
+    let glow_plugs = if a.glow_plugs_fitted {
+        let health = pb::GlowPlugHealth::try_from(a.glow_plug_health).unwrap_or_else(|_| {
+            v.add(
+                f("glow_plug_health"),
+                format!("unknown value {}", a.glow_plug_health),
+            );
+            pb::GlowPlugHealth::Unspecified
+        });
+        let g = base.glow_plugs.unwrap_or(GlowPlugs {
+            plateau_gain_k: startmargin_model::aids::DEFAULT_GLOW_PLATEAU_GAIN_K,
+            preheat_time_constant_s: startmargin_model::aids::DEFAULT_GLOW_TIME_CONSTANT_S,
+            relay_ok: true,
+            plugs_ok: true,
+        });
+        Some(GlowPlugs {
+            relay_ok: health != pb::GlowPlugHealth::RelayStuck,
+            plugs_ok: health != pb::GlowPlugHealth::PlugFailed,
+            ..g
+        })
+    } else {
+        None
+    };
+    let default_preheat_s = if base.glow_plugs.is_some() {
+        base.glow_preheat_s
+    } else {
+        5.0
+    };
+    AidConfig {
+        glow_plugs,
+        glow_preheat_s: v
+            .opt_range(&f("glow_preheat_s"), a.glow_preheat_s, 0.0, 120.0, "s")
+            .unwrap_or(default_preheat_s),
+        intake_heater_w: v
+            .opt_range(&f("intake_heater_kw"), a.intake_heater_kw, 0.0, 10.0, "kW")
+            .map_or(0.0, |k| k * 1000.0),
+        block_heater_w: v
+            .opt_range(&f("block_heater_w"), a.block_heater_w, 0.0, 4_000.0, "W")
+            .unwrap_or(0.0),
+    }
+}
+
+fn battery_from_pb(v: &mut Violations, b: Option<&pb::BatterySpec>, path: &str) -> BatteryConfig {
+    let Some(b) = b else {
+        v.add(path, "is required (capacity_cca and nominal_v)");
+        return BatteryConfig {
+            rated_cca_a: 1.0,
+            nominal_v: 12.0,
+            state_of_charge: None,
+            health_fraction: 1.0,
+        };
+    };
+    let f = |name: &str| format!("{path}.{name}");
+    let rated_cca_a = v.range(&f("capacity_cca"), b.capacity_cca, 100.0, 4_000.0, "A");
+    if b.nominal_v != 12.0 && b.nominal_v != 24.0 {
+        v.add(
+            f("nominal_v"),
+            format!("must be 12 or 24, got {}", b.nominal_v),
+        );
+    }
+    BatteryConfig {
+        rated_cca_a,
+        nominal_v: b.nominal_v,
+        state_of_charge: v
+            .opt_range(
+                &f("state_of_charge_pct"),
+                b.state_of_charge_pct,
+                0.0,
+                100.0,
+                "%",
+            )
+            .map(|p| p / 100.0),
+        health_fraction: v
+            .opt_range(&f("health_pct"), b.health_pct, 5.0, 100.0, "%")
+            .map_or(1.0, |p| p / 100.0),
+    }
+}
+
+fn fuel_from_pb(v: &mut Violations, fpb: Option<&pb::FuelSpec>, path: &str) -> FuelConfig {
+    let f = |name: &str| format!("{path}.{name}");
+    let default = pb::FuelSpec::default();
+    let fpb = match fpb {
+        Some(x) => x,
+        None => {
+            v.add(path, "is required (grade or measured, and tank_capacity_l)");
+            &default
+        }
+    };
+    let base = match (&fpb.measured, grades::grade_from_pb(fpb.grade)) {
+        (Some(m), _) => {
+            let cp = v.range(
+                &f("measured.cloud_point_c"),
+                m.cloud_point_c,
+                -60.0,
+                30.0,
+                "°C",
+            );
+            let cfpp = v.range(&f("measured.cfpp_c"), m.cfpp_c, -60.0, 30.0, "°C");
+            let pp = v.range(
+                &f("measured.pour_point_c"),
+                m.pour_point_c,
+                -70.0,
+                30.0,
+                "°C",
+            );
+            FuelBase::Measured(ColdFlowProperties {
+                cloud_point_k: celsius_to_kelvin(cp),
+                cfpp_k: celsius_to_kelvin(cfpp),
+                pour_point_k: celsius_to_kelvin(pp),
+            })
+        }
+        (None, Ok(Some(g))) => FuelBase::Grade(g),
+        (None, Ok(None)) => {
+            if fpb.grade == 0 {
+                v.add(f("grade"), "give a grade or measured cold-flow properties");
+            }
+            FuelBase::Grade(startmargin_model::fuel::FuelGrade::UsNo2)
+        }
+        (None, Err(())) => {
+            v.add(f("grade"), format!("unknown value {}", fpb.grade));
+            FuelBase::Grade(startmargin_model::fuel::FuelGrade::UsNo2)
+        }
+    };
+    let feedstock = match pb::BiodieselFeedstock::try_from(fpb.biodiesel_feedstock) {
+        Ok(pb::BiodieselFeedstock::Unspecified) => BiodieselFeedstock::Unknown,
+        Ok(pb::BiodieselFeedstock::Canola) => BiodieselFeedstock::Canola,
+        Ok(pb::BiodieselFeedstock::Soy) => BiodieselFeedstock::Soy,
+        Ok(pb::BiodieselFeedstock::Palm) => BiodieselFeedstock::Palm,
+        Ok(pb::BiodieselFeedstock::Tallow) => BiodieselFeedstock::Tallow,
+        Ok(pb::BiodieselFeedstock::UsedCookingOil) => BiodieselFeedstock::UsedCookingOil,
+        Err(_) => {
+            v.add(
+                f("biodiesel_feedstock"),
+                format!("unknown value {}", fpb.biodiesel_feedstock),
+            );
+            BiodieselFeedstock::Unknown
+        }
+    };
+    let additive = fpb.additive.as_ref().map(|a| AdditiveTreatment {
+        cfpp_improvement_k: v
+            .opt_range(
+                &f("additive.cfpp_improvement_k"),
+                a.cfpp_improvement_k,
+                0.0,
+                30.0,
+                "K",
+            )
+            .unwrap_or(startmargin_model::fuel::TYPICAL_ADDITIVE_CFPP_IMPROVEMENT_K),
+        fuel_t_when_added_k: celsius_to_kelvin(v.range(
+            &f("additive.fuel_c_when_added"),
+            a.fuel_c_when_added,
+            -60.0,
+            50.0,
+            "°C",
+        )),
+    });
+    let filter_mount = match pb::FilterMount::try_from(fpb.filter_mount) {
+        Ok(pb::FilterMount::Frame) => FilterMount::Frame,
+        Ok(_) => FilterMount::EngineBay,
+        Err(_) => {
+            v.add(
+                f("filter_mount"),
+                format!("unknown value {}", fpb.filter_mount),
+            );
+            FilterMount::EngineBay
+        }
+    };
+    FuelConfig {
+        description: FuelDescription {
+            base,
+            biodiesel_fraction: v.range(&f("biodiesel_pct"), fpb.biodiesel_pct, 0.0, 100.0, "%")
+                / 100.0,
+            feedstock,
+            no1_blend_fraction: v.range(&f("no1_blend_pct"), fpb.no1_blend_pct, 0.0, 100.0, "%")
+                / 100.0,
+            additive,
+            cetane_number: v.opt_range(&f("cetane_number"), fpb.cetane_number, 30.0, 80.0, ""),
+        },
+        tank_capacity_l: v.range(
+            &f("tank_capacity_l"),
+            fpb.tank_capacity_l,
+            10.0,
+            3_000.0,
+            "L",
+        ),
+        filter_mount,
+    }
+}
+
+fn telemetry_from_pb(
+    v: &mut Violations,
+    t: Option<&pb::VehicleTelemetry>,
+    path: &str,
+) -> Telemetry {
+    let Some(t) = t else {
+        return Telemetry::default();
+    };
+    let f = |name: &str| format!("{path}.{name}");
+    let k = |v: &mut Violations, name: &str, x: Option<f64>, lo: f64, hi: f64| {
+        v.opt_range(&f(name), x, lo, hi, "°C")
+            .map(celsius_to_kelvin)
+    };
+    let out = Telemetry {
+        observed_at_s: t
+            .observed_at
+            .as_ref()
+            .and_then(|ts| v.timestamp_value(&f("observed_at"), ts)),
+        coolant_t_k: k(v, "coolant_c", t.coolant_c, -60.0, 130.0),
+        oil_t_k: k(v, "oil_c", t.oil_c, -60.0, 150.0),
+        fuel_t_k: k(v, "fuel_c", t.fuel_c, -60.0, 90.0),
+        ambient_t_k: k(v, "ambient_c", t.ambient_c, -70.0, 50.0),
+        battery_rest_v: v.opt_range(&f("battery_rest_v"), t.battery_rest_v, 0.0, 32.0, "V"),
+        fuel_level_fraction: v
+            .opt_range(&f("fuel_level_pct"), t.fuel_level_pct, 0.0, 100.0, "%")
+            .map(|p| p / 100.0),
+    };
+    let has_temps = out.coolant_t_k.is_some() || out.oil_t_k.is_some() || out.fuel_t_k.is_some();
+    if has_temps && t.observed_at.is_none() {
+        v.add(f("observed_at"), "is required when a temperature is given");
+    }
+    out
+}
+
+fn options_from_pb(
+    v: &mut Violations,
+    o: Option<&pb::AssessmentOptions>,
+    path: &str,
+) -> AssessOptions {
+    let Some(o) = o else {
+        return AssessOptions::default();
+    };
+    let delay_correlation = match pb::DelayCorrelation::try_from(o.delay_correlation) {
+        Ok(pb::DelayCorrelation::Unspecified) => DelayCorrelation::default(),
+        Ok(pb::DelayCorrelation::ChemistryFit) => DelayCorrelation::DetailedChemistryFit,
+        Ok(pb::DelayCorrelation::Wolfer) => DelayCorrelation::Wolfer,
+        Ok(pb::DelayCorrelation::HardenbergHase) => DelayCorrelation::HardenbergHase,
+        Err(_) => {
+            v.add(
+                format!("{path}.delay_correlation"),
+                format!("unknown value {}", o.delay_correlation),
+            );
+            DelayCorrelation::default()
+        }
+    };
+    AssessOptions {
+        delay_correlation,
+        include_margin_path: o.include_margin_path,
+    }
+}
+
+/// Validates and converts one vehicle night. Returns the vehicle id and the model's input.
+pub fn night_from_pb(
+    night: &pb::VehicleNight,
+    path: &str,
+    zones: &ZoneForecasts,
+) -> Result<(String, VehicleNight), ApiError> {
+    let mut v = Violations::default();
+    let p = |name: &str| format!("{path}.{name}");
+    let Some(vehicle) = night.vehicle.as_ref() else {
+        return Err(ApiError::field(p("vehicle"), "is required"));
+    };
+    let vp = |name: &str| format!("{path}.vehicle.{name}");
+    v.id(&vp("vehicle_id"), &vehicle.vehicle_id, true);
+    let engine_aids = match vehicle.engine.as_ref() {
+        Some(e) => engine_from_pb(&mut v, e, vehicle.aids.as_ref(), &vp("engine")),
+        None => {
+            v.add(
+                vp("engine"),
+                "is required (an archetype_id or the full geometry)",
+            );
+            None
+        }
+    };
+    let battery = battery_from_pb(&mut v, vehicle.battery.as_ref(), &vp("battery"));
+    let oil = match vehicle.oil.as_ref() {
+        None => {
+            v.add(vp("oil"), "is required (sae_grade)");
+            None
+        }
+        Some(o) => match SaeGrade::parse(&o.sae_grade) {
+            Ok(g) => Some(g),
+            Err(e) => {
+                v.add(
+                    vp("oil.sae_grade"),
+                    format!("{:?} is not an SAE J300 grade ({e})", o.sae_grade),
+                );
+                None
+            }
+        },
+    };
+    let fuel = fuel_from_pb(&mut v, vehicle.fuel.as_ref(), &vp("fuel"));
+    let telemetry = telemetry_from_pb(&mut v, night.telemetry.as_ref(), &p("telemetry"));
+    let forecast = match (&night.forecast, night.forecast_zone_id.as_str()) {
+        (Some(f), "") => Some(forecast_from_pb(&mut v, f, &p("forecast"))),
+        (Some(_), _) => {
+            v.add(
+                p("forecast_zone_id"),
+                "give either forecast or forecast_zone_id, not both",
+            );
+            None
+        }
+        (None, "") => {
+            v.add(
+                p("forecast"),
+                "is required (or forecast_zone_id in a fleet stream)",
+            );
+            None
+        }
+        (None, zone) => match zones.get(zone) {
+            Some(series) => Some(series.as_ref().clone()),
+            None => {
+                v.add(
+                    p("forecast_zone_id"),
+                    format!("no zone forecast {zone:?} was sent earlier on this stream"),
+                );
+                None
+            }
+        },
+    };
+    let departure_s = v.timestamp(&p("departure_time"), night.departure_time.as_ref());
+    let block_heater_plan = night.block_heater_plan.as_ref().and_then(|plan| {
+        let from = v.timestamp(&p("block_heater_plan.on_from"), plan.on_from.as_ref());
+        let until = v.timestamp(&p("block_heater_plan.on_until"), plan.on_until.as_ref());
+        match (from, until) {
+            (Some(a), Some(b)) if b < a => {
+                v.add(p("block_heater_plan.on_until"), "is before on_from");
+                None
+            }
+            (Some(a), Some(b)) => Some((a, b)),
+            _ => None,
+        }
+    });
+    if let (Some(plan), Some((_, aids))) = (&block_heater_plan, &engine_aids) {
+        if aids.block_heater_w <= 0.0 {
+            v.add(
+                p("block_heater_plan"),
+                "the vehicle has no block heater (vehicle.aids.block_heater_w)",
+            );
+        }
+        let _ = plan;
+    }
+    let options = options_from_pb(&mut v, night.options.as_ref(), &p("options"));
+    if let (Some(dep), Some(at)) = (departure_s, telemetry.observed_at_s) {
+        if at > dep {
+            v.add(p("telemetry.observed_at"), "is after the departure");
+        }
+    }
+    v.finish(())?;
+    // Every Option below is Some when no violation was recorded.
+    let (Some((engine, aids)), Some(oil), Some(forecast), Some(departure_s)) =
+        (engine_aids, oil, forecast, departure_s)
+    else {
+        return Err(ApiError::Internal(
+            "conversion lost a value without a violation".into(),
+        ));
+    };
+    let night = VehicleNight {
+        engine,
+        aids,
+        battery,
+        oil,
+        fuel,
+        sheltered: vehicle.sheltered,
+        telemetry,
+        forecast,
+        departure_s,
+        block_heater_plan,
+        options,
+    };
+    Ok((vehicle.vehicle_id.clone(), night))
+}
+
+/// The operator's decision policy: outlook thresholds, the default action target and the
+/// probability method. Comes from the server's configuration.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Policy {
+    /// Outlook thresholds.
+    pub thresholds: OutlookThresholds,
+    /// Default no-start probability the actions aim for (0..1).
+    pub target_probability: f64,
+}
+
+impl Default for Policy {
+    fn default() -> Self {
+        Self { thresholds: OutlookThresholds::default(), target_probability: ActionPolicy::default().target_probability }
+    }
+}
+
+/// Samples of the sampling method (see `ProbabilityMethod` in the API).
+pub const SAMPLING_SAMPLES: u32 = 256;
+
+/// Validates, converts, runs the model and converts back, with the default policy. CPU-bound.
+pub fn assess_pb(
+    night: &pb::VehicleNight,
+    path: &str,
+    zones: &ZoneForecasts,
+) -> Result<pb::VehicleAssessment, ApiError> {
+    assess_pb_with(night, path, zones, &Policy::default())
+}
+
+/// A stable key of the request for the deterministic sampling stream (FNV-1a of its encoding).
+fn request_key(night: &pb::VehicleNight) -> u64 {
+    use prost::Message;
+    night.encode_to_vec().iter().fold(0xcbf2_9ce4_8422_2325_u64, |h, b| (h ^ u64::from(*b)).wrapping_mul(0x0100_0000_01b3))
+}
+
+/// Validates, converts, runs the model, the probability and the action search, and converts back.
+pub fn assess_pb_with(
+    night: &pb::VehicleNight,
+    path: &str,
+    zones: &ZoneForecasts,
+    policy: &Policy,
+) -> Result<pb::VehicleAssessment, ApiError> {
+    let decided = decide(night, path, zones, policy)?;
+    Ok(decided.message)
+}
+
+/// An assessed vehicle with what the depot plan needs.
+#[derive(Debug, Clone)]
+pub struct Decided {
+    /// The API answer.
+    pub message: pb::VehicleAssessment,
+    /// The depot plan candidate, when the vehicle has a block heater and a depot.
+    pub plug_in: Option<PlugInCandidate>,
+}
+
+/// Assesses one vehicle fully: margin, probability, outlook, actions, and its plug-in candidate.
+pub fn decide(
+    night: &pb::VehicleNight,
+    path: &str,
+    zones: &ZoneForecasts,
+    policy: &Policy,
+) -> Result<Decided, ApiError> {
+    let (vehicle_id, mut domain) = night_from_pb(night, path, zones)?;
+    let model_err = |e| ApiError::from_model(path, e);
+    let target = night
+        .options
+        .as_ref()
+        .and_then(|o| o.target_no_start_pct)
+        .map_or(policy.target_probability, |pct| pct / 100.0);
+    let method = match night.options.as_ref().map(|o| o.probability_method()) {
+        Some(pb::ProbabilityMethod::Sampling) => {
+            Method::Sampling { samples: SAMPLING_SAMPLES, key: request_key(night) }
+        }
+        _ => Method::SigmaPoints,
+    };
+    let a = assess::assess(&domain).map_err(model_err)?;
+    let p = uncertainty::no_start_probability(&domain, a.state_of_charge, method).map_err(model_err)?;
+    let mut actions = Vec::new();
+    let action_policy = ActionPolicy { target_probability: target };
+    assess::actions::recommend(&domain, &a, &action_policy, &mut actions).map_err(model_err)?;
+    let outlook = policy.thresholds.outlook(p.probability, a.gel.level);
+
+    // Depot candidate: the vehicle's probability with its heater from the recommended time.
+    let plug_in = if night.depot_id.is_empty() || domain.aids.block_heater_w <= 0.0 {
+        None
+    } else {
+        let target_k = assess::actions::target_margin_k(&action_policy);
+        match assess::actions::latest_plug_in_s(&domain, target_k).map_err(model_err)? {
+            Some((plug_s, _)) => {
+                let without = if domain.block_heater_plan.is_some() {
+                    let mut n = domain.clone();
+                    n.block_heater_plan = None;
+                    let a0 = assess::assess(&n).map_err(model_err)?;
+                    (uncertainty::no_start_probability(&n, a0.state_of_charge, method).map_err(model_err)?.probability, a0.margin_k)
+                } else {
+                    (p.probability, a.margin_k)
+                };
+                domain.block_heater_plan = Some((plug_s, domain.departure_s));
+                let with = uncertainty::no_start_probability(&domain, a.state_of_charge, method).map_err(model_err)?;
+                Some(PlugInCandidate {
+                    p_without: without.0,
+                    p_with: with.probability,
+                    heater_w: domain.aids.block_heater_w,
+                    plug_in_s: plug_s,
+                    margin_without_k: without.1,
+                })
+            }
+            None => None,
+        }
+    };
+    let mut message = assessment_to_pb(vehicle_id, &domain, &a);
+    message.no_start_pct = p.probability * 100.0;
+    message.margin_spread_k = p.margin_spread_k;
+    message.dominant_uncertainty = uncertainty_to_pb(p.dominant) as i32;
+    message.outlook = outlook_to_pb(outlook) as i32;
+    message.no_start_standard_error_pct = p.standard_error * 100.0;
+    message.depot_id = night.depot_id.clone();
+    message.actions = actions.iter().map(action_to_pb).collect();
+    Ok(Decided { message, plug_in })
+}
+
+fn uncertainty_to_pb(u: UncertaintySource) -> pb::UncertaintySource {
+    match u {
+        UncertaintySource::Forecast => pb::UncertaintySource::Forecast,
+        UncertaintySource::BatteryCharge => pb::UncertaintySource::BatteryCharge,
+        UncertaintySource::BatteryHealth => pb::UncertaintySource::BatteryHealth,
+        UncertaintySource::FuelProperties => pb::UncertaintySource::FuelProperties,
+        UncertaintySource::Model => pb::UncertaintySource::Model,
+    }
+}
+
+/// Outlook level → API enum.
+pub fn outlook_to_pb(o: StartOutlook) -> pb::StartOutlook {
+    match o {
+        StartOutlook::Assured => pb::StartOutlook::Assured,
+        StartOutlook::Watch => pb::StartOutlook::Watch,
+        StartOutlook::AtRisk => pb::StartOutlook::AtRisk,
+        StartOutlook::NoStartExpected => pb::StartOutlook::NoStartExpected,
+    }
+}
+
+fn action_kind_to_pb(k: ActionKind) -> pb::ActionKind {
+    match k {
+        ActionKind::PlugInBlockHeater => pb::ActionKind::PlugInBlockHeater,
+        ActionKind::ExtendPreheat => pb::ActionKind::ExtendPreheat,
+        ActionKind::RepairGlowPlugs => pb::ActionKind::RepairGlowPlugs,
+        ActionKind::ChargeBattery => pb::ActionKind::ChargeBattery,
+        ActionKind::ThawBattery => pb::ActionKind::ThawBattery,
+        ActionKind::LighterOil => pb::ActionKind::LighterOil,
+        ActionKind::TreatFuel => pb::ActionKind::TreatFuel,
+        ActionKind::BlendNo1 => pb::ActionKind::BlendNo1,
+        ActionKind::WinterFuel => pb::ActionKind::WinterFuel,
+        ActionKind::WarmFuel => pb::ActionKind::WarmFuel,
+        ActionKind::ParkSheltered => pb::ActionKind::ParkSheltered,
+    }
+}
+
+fn action_to_pb(a: &Action) -> pb::Action {
+    pb::Action {
+        kind: action_kind_to_pb(a.kind) as i32,
+        summary: a.summary.clone(),
+        expected_margin_gain_k: a.expected_margin_gain_k,
+        act_by: a.act_by_s.map(timestamp),
+        energy_kwh: a.energy_j / 3.6e6,
+        caution: a.caution.unwrap_or("").to_string(),
+    }
+}
+
+/// Validates and converts a depot's outlets (`path` = field path prefix).
+pub fn depot_from_pb(d: &pb::DepotOutlets, path: &str) -> Result<(String, DepotLimits), ApiError> {
+    let mut v = Violations::default();
+    v.id(&format!("{path}.depot_id"), &d.depot_id, true);
+    if d.outlet_count > 100_000 {
+        v.add(format!("{path}.outlet_count"), "at most 100000 outlets");
+    }
+    let limit = v.opt_range(&format!("{path}.circuit_limit_kw"), d.circuit_limit_kw, 0.0, 10_000.0, "kW");
+    v.finish(())?;
+    Ok((d.depot_id.clone(), DepotLimits { outlets: d.outlet_count, circuit_limit_w: limit.map(|k| k * 1000.0) }))
+}
+
+/// The depot's plan as the API message. `vehicles[i]` and `candidates[i]` belong together.
+pub fn plan_to_pb(depot_id: &str, limits: &DepotLimits, vehicles: &[String], candidates: &[PlugInCandidate]) -> pb::PlugInPlan {
+    let plan = plug_in_plan::plan(candidates, limits);
+    let coldest = plug_in_plan::coldest_first(candidates, limits);
+    pb::PlugInPlan {
+        depot_id: depot_id.to_string(),
+        plug_ins: plan
+            .chosen
+            .iter()
+            .map(|&i| pb::PlannedPlugIn {
+                vehicle_id: vehicles[i].clone(),
+                plug_in_at: Some(timestamp(candidates[i].plug_in_s)),
+                heater_w: candidates[i].heater_w,
+                no_start_without_pct: candidates[i].p_without * 100.0,
+                no_start_with_pct: candidates[i].p_with * 100.0,
+            })
+            .collect(),
+        expected_no_starts_without: plan.expected_no_starts_without,
+        expected_no_starts_with: plan.expected_no_starts_with,
+        expected_no_starts_coldest_first: coldest.expected_no_starts_with,
+        exact: plan.method == PlanMethod::Exact,
+        gap_bound: plan.gap_bound,
+    }
+}
+
+fn limiting_to_pb(l: LimitingFactor) -> pb::LimitingFactor {
+    match l {
+        LimitingFactor::None => pb::LimitingFactor::None,
+        LimitingFactor::ColdCharge => pb::LimitingFactor::ColdCharge,
+        LimitingFactor::SlowCranking => pb::LimitingFactor::SlowCranking,
+        LimitingFactor::FrozenBattery => pb::LimitingFactor::FrozenBattery,
+        LimitingFactor::Leakage => pb::LimitingFactor::Leakage,
+        LimitingFactor::WaxedFuel => pb::LimitingFactor::WaxedFuel,
+    }
+}
+
+fn explanation(a: &Assessment) -> String {
+    let b = &a.budget;
+    let c = &a.cranking;
+    match a.limiting_factor {
+        LimitingFactor::None => format!(
+            "Charge reaches {:.0} °C against {:.0} °C needed: {:.0} K to spare.",
+            kelvin_to_celsius(b.predicted_end_t_k),
+            kelvin_to_celsius(b.required_t_k),
+            a.margin_k
+        ),
+        LimitingFactor::ColdCharge => format!(
+            "The soaked engine ({:.0} °C) takes {:.0} K from the charge; it reaches {:.0} °C against {:.0} °C needed.",
+            kelvin_to_celsius(a.soaked.engine_t_k),
+            b.wall_loss_k,
+            kelvin_to_celsius(b.predicted_end_t_k),
+            kelvin_to_celsius(b.required_t_k)
+        ),
+        LimitingFactor::Leakage => format!(
+            "Leakage past rings and valves costs {:.0} K at {:.0} rpm; the charge reaches {:.0} °C against {:.0} °C needed.",
+            b.leakage_loss_k,
+            c.result.crank_rpm,
+            kelvin_to_celsius(b.predicted_end_t_k),
+            kelvin_to_celsius(b.required_t_k)
+        ),
+        LimitingFactor::SlowCranking => format!(
+            "Cranking reaches only {:.0} rpm (needs {:.0}): battery at {:.0} °C and {:.0} % charge, oil at {:.0} mPa·s.",
+            c.result.crank_rpm,
+            c.min_start_speed_rpm,
+            kelvin_to_celsius(a.soaked.battery_t_k),
+            a.state_of_charge * 100.0,
+            c.oil_viscosity_pa_s * 1000.0
+        ),
+        LimitingFactor::FrozenBattery => format!(
+            "The battery electrolyte is frozen at {:.0} °C and {:.0} % charge: it cannot crank. Never charge or jump a frozen battery; thaw it first.",
+            kelvin_to_celsius(a.soaked.battery_t_k),
+            a.state_of_charge * 100.0
+        ),
+        LimitingFactor::WaxedFuel => format!(
+            "Fuel falls to {:.0} °C, {:.1} K below its CFPP: the filter will not pass it.",
+            kelvin_to_celsius(a.gel.lowest_t_k),
+            -a.gel.margin_to_cfpp_k
+        ),
+    }
+}
+
+fn gel_level_to_pb(l: GelRiskLevel) -> pb::GelLevel {
+    grades::gel_level_to_pb(l)
+}
+
+fn fuel_point_to_pb(p: FuelPoint) -> pb::FuelPoint {
+    match p {
+        FuelPoint::Tank => pb::FuelPoint::Tank,
+        FuelPoint::Line => pb::FuelPoint::Line,
+        FuelPoint::Filter => pb::FuelPoint::Filter,
+    }
+}
+
+/// The model's answer as the API message.
+pub fn assessment_to_pb(
+    vehicle_id: String,
+    night: &VehicleNight,
+    a: &Assessment,
+) -> pb::VehicleAssessment {
+    let b = &a.budget;
+    let c = kelvin_to_celsius;
+    let gel = &a.gel;
+    pb::VehicleAssessment {
+        vehicle_id,
+        model_version: assess::MODEL_VERSION.to_string(),
+        departure_time: Some(timestamp(night.departure_s)),
+        start_margin_k: a.margin_k,
+        start_expected: a.start_expected,
+        limiting_factor: limiting_to_pb(a.limiting_factor) as i32,
+        explanation: explanation(a),
+        budget: Some(pb::HeatBudget {
+            intake_c: c(b.intake_t_k),
+            ideal_end_c: c(b.ideal_end_t_k),
+            wall_loss_k: b.wall_loss_k,
+            leakage_loss_k: b.leakage_loss_k,
+            evaporation_loss_k: b.evaporation_loss_k,
+            intake_heater_gain_k: b.intake_heater_gain_k,
+            glow_plug_gain_k: b.glow_plug_gain_k,
+            predicted_end_c: c(b.predicted_end_t_k),
+            required_c: c(b.required_t_k),
+            end_pressure_kpa: b.end_p_pa / 1000.0,
+            compression_gauge_kpa: b.compression_gauge_pa / 1000.0,
+        }),
+        cranking: Some(pb::CrankingOutcome {
+            cranking_rpm: a.cranking.result.crank_rpm,
+            min_start_speed_rpm: a.cranking.min_start_speed_rpm,
+            terminal_v: a.cranking.result.terminal_v,
+            current_a: a.cranking.result.current_a,
+            oil_viscosity_mpa_s: a.cranking.oil_viscosity_pa_s * 1000.0,
+            battery_frozen: a.cranking.result.battery_frozen,
+        }),
+        soaked: Some(pb::SoakedState {
+            engine_c: c(a.soaked.engine_t_k),
+            battery_c: c(a.soaked.battery_t_k),
+            fuel_tank_c: c(a.soaked.fuel_tank_t_k),
+            fuel_filter_c: c(a.soaked.fuel_filter_t_k),
+            air_c: c(a.soaked.air_t_k),
+        }),
+        gel: Some(pb::GelOutlook {
+            level: gel_level_to_pb(gel.level) as i32,
+            blocks_start: gel.blocks_start,
+            cloud_point_c: c(a.cold_flow.cloud_point_k),
+            cfpp_c: c(a.cold_flow.cfpp_k),
+            pour_point_c: c(a.cold_flow.pour_point_k),
+            lowest_fuel_c: c(gel.lowest_t_k),
+            lowest_at: Some(timestamp(gel.lowest_at_s)),
+            limiting_point: fuel_point_to_pb(gel.limiting_point) as i32,
+            hours_below_cloud_point: gel.hours_below_cloud_point,
+            margin_to_cfpp_k: gel.margin_to_cfpp_k,
+            margin_to_pour_point_k: gel.margin_to_pour_point_k,
+            cloud_point_crossed_at: gel.crosses_cloud_point_at_s.map(timestamp),
+            cfpp_crossed_at: gel.crosses_cfpp_at_s.map(timestamp),
+            path: a
+                .fuel_path
+                .iter()
+                .map(|s| pb::FuelTemperaturePoint {
+                    at: Some(timestamp(s.at_s)),
+                    tank_c: c(s.tank_t_k),
+                    filter_c: c(s.filter_t_k),
+                })
+                .collect(),
+        }),
+        no_start_pct: 0.0,
+        margin_spread_k: 0.0,
+        dominant_uncertainty: pb::UncertaintySource::Unspecified as i32,
+        outlook: pb::StartOutlook::Unspecified as i32,
+        no_start_standard_error_pct: 0.0,
+        depot_id: String::new(),
+        margin_path: a
+            .margin_path
+            .iter()
+            .map(|m| pb::MarginPoint {
+                at: Some(timestamp(m.at_s)),
+                margin_k: m.margin_k,
+            })
+            .collect(),
+        actions: Vec::new(),
+    }
+}
+
+/// Cached DescribeModel answer.
+pub(crate) fn cached<T: Clone>(cell: &'static OnceLock<T>, make: impl FnOnce() -> T) -> T {
+    cell.get_or_init(make).clone()
+}

@@ -1,0 +1,37 @@
+//! The server's own deadline on AssessVehicle: a call that outlives `request_timeout_s` gets
+//! DEADLINE_EXCEEDED (not CANCELLED, not UNKNOWN), and the server goes on answering.
+
+use startmargin_e2e::{TestServer, loopback_config, sample_night};
+use startmargin_proto::v1 as pb;
+use startmargin_service::Config;
+use tonic::Code;
+
+#[tokio::test]
+async fn a_call_past_the_request_timeout_gets_deadline_exceeded() -> anyhow::Result<()> {
+    let config = Config {
+        request_timeout_s: 0.001,
+        ..loopback_config()
+    };
+    let server = TestServer::start_with(config).await?;
+    let mut night = sample_night("v");
+    // The sampling method runs the model hundreds of times: far beyond a millisecond.
+    night.options = Some(pb::AssessmentOptions {
+        probability_method: pb::ProbabilityMethod::Sampling as i32,
+        ..Default::default()
+    });
+    let status = server
+        .client()
+        .assess_vehicle(pb::AssessVehicleRequest { night: Some(night) })
+        .await
+        .expect_err("the assessment cannot finish within 1 ms");
+    assert_eq!(status.code(), Code::DeadlineExceeded, "{status:?}");
+    assert!(status.message().contains("request timeout"), "{status:?}");
+
+    // DescribeModel has no such deadline and the server still answers.
+    let d = server
+        .client()
+        .describe_model(pb::DescribeModelRequest {})
+        .await?;
+    assert!(!d.into_inner().model_version.is_empty());
+    server.shutdown().await
+}
