@@ -17,7 +17,9 @@ pub mod api;
 pub mod config;
 pub mod convert;
 pub mod error;
+pub mod metrics;
 pub mod server;
+pub mod tenant;
 
 pub use config::Config;
 pub use server::{RunningServer, spawn, spawn_on_loopback};
