@@ -8,7 +8,7 @@
 //! 04:30 and 07:30. Their fuels, batteries, oils and start aids differ on purpose: one truck still
 //! carries summer No. 2, a sweeper runs B20 soy, a pickup's glow-plug relay is stuck, a van's
 //! battery is at 55 %, a backhoe's battery is old. The shuttle bus sleeps in the shed, plugged in
-//! all night; three yard vehicles have block heaters but the yard has only two free outlets on a
+//! all night; four yard vehicles have block heaters but the yard has only two free outlets on a
 //! 2.6 kW circuit tonight, so the run asks the server for the depot's plug-in plan.
 //!
 //! Times: local time is UTC−06:00 (fixed offset, no daylight saving in January); the API gets UTC.
@@ -292,8 +292,9 @@ pub fn evening_cold_front() -> Result<Scenario, ScenarioError> {
                 .tank_l(110.0)
                 .glow_plugs(GlowPlugHealth::RelayStuck)
                 .glow_preheat_s(10.0)
+                .block_heater_w(1_000.0)
                 .build()?,
-            role: "older pickup, glow-plug relay stuck",
+            role: "older pickup, glow-plug relay stuck, block heater, yard outlet if planned",
             archetype: "older-idi-v8",
             telemetry: key_off(84.0, 87.0, 26.0, 50.0)?,
             departure: local(6, 30, true),
@@ -505,7 +506,7 @@ mod tests {
         assert_eq!(items.len(), 14);
         assert_eq!(items[0].item_id(), "zone:frostmere-yard");
         assert_eq!(items[1].item_id(), "depot:frostmere-yard");
-        // Three yard vehicles have block heaters and compete for two outlets; the bus in the
+        // Four yard vehicles have block heaters and compete for two outlets; the bus in the
         // shed keeps its own plan.
         let yard_heaters = s
             .vehicles
@@ -522,7 +523,7 @@ mod tests {
                         .is_some_and(|a| a.block_heater_w.unwrap_or(0.0) > 0.0)
             })
             .count();
-        assert_eq!(yard_heaters, 3);
+        assert_eq!(yard_heaters, 4);
         assert!(s.vehicles[3].night.as_pb().block_heater_plan.is_some());
     }
 }

@@ -48,6 +48,17 @@ async fn the_whole_fleet_is_assessed_through_the_sdk() {
     };
     assert!(cfpp("PL-02") > cfpp("PU-05"));
 
+    // The plow still on summer No. 2 (frame-mounted filter) is flagged before the night's low,
+    // with the times its fuel crosses cloud point and CFPP, and the fuel blocks its start.
+    let i = s.vehicles.iter().position(|v| v.id() == "PL-02").unwrap();
+    let a = outcomes[i].as_ref().unwrap();
+    let gel = a.gel.as_ref().unwrap();
+    assert_eq!(gel.level, startmargin_sdk::api::GelLevel::NoFlow as i32);
+    assert!(gel.blocks_start);
+    assert!(gel.cloud_point_crossed_at.as_ref().unwrap().seconds < gel.cfpp_crossed_at.as_ref().unwrap().seconds);
+    assert!(gel.cfpp_crossed_at.as_ref().unwrap().seconds <= gel.lowest_at.as_ref().unwrap().seconds);
+    assert_eq!(a.limiting_factor, startmargin_sdk::api::LimitingFactor::WaxedFuel as i32);
+
     // The yard's plan: at most its two outlets, only vehicles parked there with a block heater.
     assert_eq!(fleet.plans.len(), 1);
     let plan = &fleet.plans[0];
@@ -55,12 +66,15 @@ async fn the_whole_fleet_is_assessed_through_the_sdk() {
     assert!(plan.plug_ins.len() <= scenario::YARD_OUTLETS as usize);
     for p in &plan.plug_ins {
         assert!(
-            ["PL-01", "LDR-09", "PU-11"].contains(&p.vehicle_id.as_str()),
+            ["PL-01", "PU-06", "LDR-09", "PU-11"].contains(&p.vehicle_id.as_str()),
             "{}",
             p.vehicle_id
         );
     }
     assert!(plan.expected_no_starts_with <= plan.expected_no_starts_without);
+    // Plugging in the coldest first spends an outlet on the pickup whose stuck glow-plug relay no
+    // heater can make up for; the plan does better.
+    assert!(plan.expected_no_starts_with < plan.expected_no_starts_coldest_first);
 
     let svg = chart::margin_chart(&s, &assessed);
     assert_eq!(svg.matches("<polyline").count(), 12);

@@ -40,6 +40,10 @@ pub const MODEL_VERSION: &str = concat!("startmargin-model ", env!("CARGO_PKG_VE
 /// Longest forecast the model accepts, in steps (bounds work and stack buffers).
 pub const MAX_FORECAST_STEPS: usize = 168;
 
+/// Cranking speed at which the intake heater's air stream is evaluated, rpm (the middle of the
+/// typical 100–250 rpm diesel cranking band, reference.md §8.6, from memory).
+pub const INTAKE_HEATER_REFERENCE_RPM: f64 = 150.0;
+
 /// State of charge assumed when neither the profile nor a rested voltage gives one (estimate:
 /// a vehicle in daily service with a working charging system).
 pub const DEFAULT_STATE_OF_CHARGE: f64 = 0.9;
@@ -409,6 +413,36 @@ fn validate(night: &VehicleNight) -> Result<(), ModelError> {
     check_range("intake_heater_w", night.aids.intake_heater_w, 0.0, 20_000.0, "0–20 kW")?;
     check_range("block_heater_w", night.aids.block_heater_w, 0.0, 5_000.0, "0–5 kW")?;
     check_range("battery_health_fraction", night.battery.health_fraction, 0.05, 1.0, "5–100 %")?;
+    check_range("min_start_speed_rpm", night.engine.min_start_speed_rpm, 10.0, 600.0, "10–600 rpm")?;
+    if let Some(tau_s) = night.engine.cooldown_time_constant_s {
+        check_range("cooldown_time_constant_s", tau_s, 600.0, 172_800.0, "10 min – 48 h")?;
+    }
+    if let Some(p) = night.engine.measured_compression_abs_pa {
+        check_range("measured_compression_abs_pa", p, 400_000.0, 8_200_000.0, "0.4–8.2 MPa absolute")?;
+    }
+    for s in &night.forecast.air_spread_k {
+        check_range("air_spread_k", *s, 0.0, 30.0, "0–30 K")?;
+    }
+    if !night.forecast.air_spread_k.is_empty()
+        && night.forecast.air_spread_k.len() != night.forecast.hours.len()
+    {
+        return Err(ModelError::Inconsistent("give an air spread for every forecast step or for none"));
+    }
+    let t = &night.telemetry;
+    for (name, v) in [("coolant_t_k", t.coolant_t_k), ("oil_t_k", t.oil_t_k), ("fuel_t_k", t.fuel_t_k), ("ambient_t_k", t.ambient_t_k)] {
+        if let Some(v) = v {
+            check_range(name, v, 183.15, 423.15, "−90 to +150 °C")?;
+        }
+    }
+    if let Some(at) = t.observed_at_s {
+        check_range("observed_at_s", at, -1e12, 1e12, "a finite time")?;
+    }
+    if let Some(v) = t.battery_rest_v {
+        check_range("battery_rest_v", v, 0.0, 32.0, "0–32 V")?;
+    }
+    if let Some(soc) = night.battery.state_of_charge {
+        check_range("state_of_charge", soc, 0.0, 1.0, "0–100 %")?;
+    }
     Ok(())
 }
 
@@ -624,9 +658,12 @@ fn heat_budget(
 
     // Intake heater: the same chain from a warmer intake; its gain is the difference it makes.
     let (intake_heater_gain_k, tdc) = if night.aids.intake_heater_w > 0.0 {
+        // The air stream is taken at a nominal cranking speed, not the actual one: otherwise a
+        // weaker battery (slower cranking, less air) would earn a larger heater rise, and anything
+        // that helps cranking would cost heater gain, which the trade does not see.
         let flow_kg_s = aids::cranking_air_mass_flow_kg_s(
             engine.geometry.displacement_m3(),
-            crank_rpm,
+            INTAKE_HEATER_REFERENCE_RPM,
             intake_p_pa,
             air_t_k,
             aids::DEFAULT_CRANKING_VOLUMETRIC_EFFICIENCY,

@@ -118,33 +118,34 @@ fn night_start_s(night: &VehicleNight) -> f64 {
     }
 }
 
-/// Block heater: latest plug-in time that still meets `target_margin_k`, by bisection on the
-/// plug-in time (a later plug-in never raises the margin: tested).
+/// Block heater: latest plug-in time at which the vehicle still starts with `target_margin_k`, by
+/// bisection on the plug-in time (a later plug-in never raises the margin: tested).
 pub fn latest_plug_in_s(night: &VehicleNight, target_margin_k: f64) -> Result<Option<(f64, f64)>, ModelError> {
     if night.aids.block_heater_w <= 0.0 {
         return Ok(None);
     }
     let start_s = night_start_s(night);
     let dep_s = night.departure_s;
-    let margin_at = |t: f64| -> Result<f64, ModelError> {
-        Ok(margin_with(night, |n| n.block_heater_plan = Some((t, dep_s)))?.margin_k)
-    };
-    if margin_with(night, |n| n.block_heater_plan = None)?.margin_k >= target_margin_k {
+    // A plan is good enough when the vehicle is expected to start (the warm oil also speeds
+    // cranking) with the target margin.
+    let good = |a: &Assessment| a.start_expected && a.margin_k >= target_margin_k;
+    let plugged_at = |t: f64| margin_with(night, |n| n.block_heater_plan = Some((t, dep_s)));
+    if good(&margin_with(night, |n| n.block_heater_plan = None)?) {
         // The target is met without the heater: no plug-in needed.
         return Ok(None);
     }
-    let all_night = margin_at(start_s)?;
-    if all_night < target_margin_k {
+    let all_night = plugged_at(start_s)?;
+    if !good(&all_night) {
         // Even all night is not enough: plug in now for the most it can give.
-        return Ok(Some((start_s, all_night)));
+        return Ok(Some((start_s, all_night.margin_k)));
     }
     let (mut early, mut late) = (start_s, dep_s);
     // 16 halvings of a night of ~15 h resolve about 1 minute.
     for _ in 0..16 {
         let mid = 0.5 * (early + late);
-        if margin_at(mid)? >= target_margin_k { early = mid } else { late = mid }
+        if good(&plugged_at(mid)?) { early = mid } else { late = mid }
     }
-    Ok(Some((early, margin_at(early)?)))
+    Ok(Some((early, plugged_at(early)?.margin_k)))
 }
 
 /// Recommends actions for an assessed night, most useful first.
@@ -167,6 +168,7 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
     }
     if needs_help {
         if let Some((plug_s, margin_k)) = latest_plug_in_s(night, target_k)? {
+            let planned = margin_with(night, |n| n.block_heater_plan = Some((plug_s, n.departure_s)))?;
             let energy_j = night.aids.block_heater_w * (night.departure_s - plug_s).max(0.0);
             let all_night_j = night.aids.block_heater_w * (night.departure_s - night_start_s(night)).max(0.0);
             out.push(Action {
@@ -179,7 +181,7 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
                 act_by_s: Some(plug_s),
                 energy_j,
                 caution: Some(CORD_CAUTION),
-                fixes_hard_failure: a.limiting_factor == LimitingFactor::SlowCranking && margin_k > 0.0,
+                fixes_hard_failure: !a.start_expected && planned.start_expected,
             });
         }
         if let Some(g) = night.aids.glow_plugs {
