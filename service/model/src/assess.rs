@@ -783,3 +783,6 @@ fn margin_path(
     }
     Ok(out)
 }
+
+#[cfg(test)]
+mod tests;

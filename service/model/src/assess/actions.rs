@@ -297,3 +297,7 @@ fn fuel_action(f: &FuelAdvice, a: &Assessment) -> Action {
         fixes_hard_failure: a.gel.blocks_start,
     }
 }
+
+#[cfg(test)]
+#[path = "actions_tests.rs"]
+mod tests;

@@ -326,3 +326,7 @@ fn sampling(
         model_runs: samples,
     })
 }
+
+#[cfg(test)]
+#[path = "uncertainty_tests.rs"]
+mod tests;
