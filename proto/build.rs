@@ -10,6 +10,7 @@ const PROTO_FILES: &[&str] = &[
     "startmargin/v1/vehicle.proto",
     "startmargin/v1/conditions.proto",
     "startmargin/v1/assessment.proto",
+    "startmargin/v1/watch.proto",
     "startmargin/v1/service.proto",
 ];
 

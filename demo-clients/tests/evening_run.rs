@@ -55,9 +55,17 @@ async fn the_whole_fleet_is_assessed_through_the_sdk() {
     let gel = a.gel.as_ref().unwrap();
     assert_eq!(gel.level, startmargin_sdk::api::GelLevel::NoFlow as i32);
     assert!(gel.blocks_start);
-    assert!(gel.cloud_point_crossed_at.as_ref().unwrap().seconds < gel.cfpp_crossed_at.as_ref().unwrap().seconds);
-    assert!(gel.cfpp_crossed_at.as_ref().unwrap().seconds <= gel.lowest_at.as_ref().unwrap().seconds);
-    assert_eq!(a.limiting_factor, startmargin_sdk::api::LimitingFactor::WaxedFuel as i32);
+    assert!(
+        gel.cloud_point_crossed_at.as_ref().unwrap().seconds
+            < gel.cfpp_crossed_at.as_ref().unwrap().seconds
+    );
+    assert!(
+        gel.cfpp_crossed_at.as_ref().unwrap().seconds <= gel.lowest_at.as_ref().unwrap().seconds
+    );
+    assert_eq!(
+        a.limiting_factor,
+        startmargin_sdk::api::LimitingFactor::WaxedFuel as i32
+    );
 
     // The yard's plan: at most its two outlets, only vehicles parked there with a block heater.
     assert_eq!(fleet.plans.len(), 1);

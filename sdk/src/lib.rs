@@ -46,6 +46,7 @@ mod retry;
 mod telemetry;
 pub mod time;
 mod validate;
+mod watch;
 
 /// The generated API messages, client and server of `startmargin.v1`.
 pub use startmargin_proto::v1 as api;
@@ -64,6 +65,9 @@ pub use profile::{VehicleProfile, VehicleProfileBuilder};
 pub use retry::Backoff;
 pub use telemetry::{Telemetry, TelemetryBuilder};
 pub use validate::{BuildError, FieldViolation};
+pub use watch::{
+    REPLAY_TELEMETRY_PER_VEHICLE, WatchBuilder, WatchEvent, WatchEvents, WatchHandle, WatchSender,
+};
 
 /// The answer of `DescribeModel`.
 pub type ModelDescription = api::DescribeModelResponse;

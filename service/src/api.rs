@@ -119,6 +119,7 @@ pub struct StartMarginApi {
     in_flight: Arc<Semaphore>,
     limits: Limits,
     draining: CancellationToken,
+    watch: crate::watch::WatchSettings,
 }
 
 static DESCRIBE: OnceLock<pb::DescribeModelResponse> = OnceLock::new();
@@ -138,6 +139,7 @@ impl StartMarginApi {
                 policy: config.policy(),
             },
             draining,
+            watch: crate::watch::WatchSettings::from_config(config),
         })
     }
 }
@@ -222,6 +224,23 @@ impl pb::start_margin_service_server::StartMarginService for StartMarginApi {
             result
         });
         Ok(Response::new(Box::pin(responses)))
+    }
+
+    type WatchFleetStream = crate::watch::WatchResponses;
+
+    async fn watch_fleet(
+        &self,
+        request: Request<Streaming<pb::WatchFleetRequest>>,
+    ) -> Result<Response<Self::WatchFleetStream>, Status> {
+        // The watch runs its re-scores on this service's compute pool.
+        let pool = Arc::clone(&self.pool);
+        let submit: crate::watch::Submit = Arc::new(move |job| pool.submit(job));
+        Ok(Response::new(crate::watch::start(
+            request,
+            submit,
+            self.watch,
+            self.draining.clone(),
+        )))
     }
 
     async fn describe_model(

@@ -18,6 +18,9 @@ pub const ENV_PREFIX: &str = "STARTMARGIN_";
 /// Default listen address: loopback only, so an unconfigured server is not exposed.
 pub const DEFAULT_LISTEN: &str = "127.0.0.1:50051";
 
+/// Default address of the Prometheus metrics endpoint: loopback only.
+pub const DEFAULT_METRICS_LISTEN: &str = "127.0.0.1:9464";
+
 /// Largest accepted value of `max_decode_message_bytes` (64 MiB): fleets stream, they do not batch.
 pub const MAX_DECODE_MESSAGE_BYTES_LIMIT: usize = 64 * 1024 * 1024;
 
@@ -74,6 +77,40 @@ pub struct Config {
     pub outlook_no_start_from_pct: f64,
     /// No-start probability the recommended actions aim for when a request names none, percent.
     pub action_target_no_start_pct: f64,
+    /// Most vehicles one WatchFleet stream may watch.
+    pub watch_max_vehicles_per_stream: usize,
+    /// Most updates per second one WatchFleet stream may send; faster input is read more slowly.
+    pub watch_max_updates_per_s: f64,
+    /// An act-by alert goes out at the latest this many minutes before the action's deadline.
+    pub watch_alert_lead_min: f64,
+    /// UTC hour (0–23) of the departure's night from which act-by alerts may go out early;
+    /// before it only the lead sends them. Unset = the lead alone.
+    pub watch_quiet_until_hour: Option<u32>,
+    /// A raised outlook alert clears only when the no-start probability falls this many percent
+    /// below its level's threshold (hysteresis).
+    pub watch_hysteresis_pct: f64,
+    /// TLS certificate chain (PEM); with `tls_key_path` the server speaks TLS only. Unset = plain.
+    pub tls_cert_path: Option<PathBuf>,
+    /// TLS private key (PEM) of `tls_cert_path`.
+    pub tls_key_path: Option<PathBuf>,
+    /// CA certificates (PEM) for mutual TLS: when set, every client must present a certificate
+    /// signed by one of them.
+    pub tls_client_ca_path: Option<PathBuf>,
+    /// File of bearer tokens, one `tenant-id:token` per line; unset with `auth_tokens_env` empty
+    /// turns authentication off.
+    pub auth_tokens_file: Option<PathBuf>,
+    /// Name of an environment variable holding bearer tokens as `tenant-id:token` entries
+    /// separated by commas or newlines; empty = none. Must not start with `STARTMARGIN_`.
+    pub auth_tokens_env: String,
+    /// Address of the Prometheus metrics endpoint (`GET /metrics`); empty turns it off. When
+    /// `listen` uses port 0, a fixed metrics port is replaced by port 0 too (tests, demos).
+    pub metrics_listen: String,
+    /// Streaming calls (AssessFleet, WatchFleet) open at once over the whole server; one more is
+    /// refused at once with RESOURCE_EXHAUSTED.
+    pub max_open_streams: usize,
+    /// Age after which a client connection is asked to reconnect (HTTP/2 GOAWAY; calls in flight
+    /// finish), seconds, so that clients spread over replicas added later; 0 = never.
+    pub max_connection_age_s: f64,
 }
 
 impl Default for Config {
@@ -100,6 +137,19 @@ impl Default for Config {
             outlook_at_risk_from_pct: policy.thresholds.at_risk_from * 100.0,
             outlook_no_start_from_pct: policy.thresholds.no_start_from * 100.0,
             action_target_no_start_pct: policy.target_probability * 100.0,
+            watch_max_vehicles_per_stream: 100_000,
+            watch_max_updates_per_s: 5_000.0,
+            watch_alert_lead_min: 60.0,
+            watch_quiet_until_hour: None,
+            watch_hysteresis_pct: 2.0,
+            tls_cert_path: None,
+            tls_key_path: None,
+            tls_client_ca_path: None,
+            auth_tokens_file: None,
+            auth_tokens_env: String::new(),
+            metrics_listen: DEFAULT_METRICS_LISTEN.to_string(),
+            max_open_streams: 1024,
+            max_connection_age_s: 0.0,
         }
     }
 }
@@ -227,6 +277,45 @@ impl Config {
                 "action_target_no_start_pct = {target} must be between 0 and 100 (exclusive)"
             ));
         }
+        problems.extend(self.security_problems());
+        if self.watch_max_vehicles_per_stream == 0
+            || self.watch_max_vehicles_per_stream > 10_000_000
+        {
+            problems.push(format!(
+                "watch_max_vehicles_per_stream = {} must be between 1 and 10000000",
+                self.watch_max_vehicles_per_stream
+            ));
+        }
+        let rate = self.watch_max_updates_per_s;
+        if !(rate.is_finite() && (1.0..=1_000_000.0).contains(&rate)) {
+            problems.push(format!(
+                "watch_max_updates_per_s = {rate} must be between 1 and 1000000"
+            ));
+        }
+        let lead = self.watch_alert_lead_min;
+        if !(lead.is_finite() && (0.0..=1440.0).contains(&lead)) {
+            problems.push(format!(
+                "watch_alert_lead_min = {lead} must be between 0 and 1440 minutes"
+            ));
+        }
+        if let Some(hour) = self.watch_quiet_until_hour
+            && hour > 23
+        {
+            problems.push(format!(
+                "watch_quiet_until_hour = {hour} must be a UTC hour 0 to 23"
+            ));
+        }
+        let hysteresis = self.watch_hysteresis_pct;
+        if !(hysteresis.is_finite()
+            && hysteresis >= 0.0
+            && hysteresis < self.outlook_at_risk_from_pct)
+        {
+            problems.push(format!(
+                "watch_hysteresis_pct = {hysteresis} must be at least 0 and below \
+                 outlook_at_risk_from_pct ({})",
+                self.outlook_at_risk_from_pct
+            ));
+        }
         if problems.is_empty() {
             Ok(())
         } else {
@@ -262,6 +351,59 @@ impl Config {
     /// global concurrency limit.
     pub fn fleet_in_flight_per_stream(&self) -> usize {
         (self.effective_compute_threads() * 2).clamp(1, self.concurrency_limit)
+    }
+
+    /// Problems of the TLS, authentication, metrics and stream-limit keys.
+    fn security_problems(&self) -> Vec<String> {
+        let mut problems = Vec::new();
+        if self.tls_cert_path.is_some() != self.tls_key_path.is_some() {
+            problems.push("tls_cert_path and tls_key_path must be set together".to_string());
+        }
+        if self.tls_client_ca_path.is_some() && self.tls_cert_path.is_none() {
+            problems.push("tls_client_ca_path needs tls_cert_path and tls_key_path".to_string());
+        }
+        if self.auth_tokens_env.starts_with(ENV_PREFIX) {
+            problems.push(format!(
+                "auth_tokens_env must not start with {ENV_PREFIX} (those variables are configuration keys)"
+            ));
+        }
+        if !self.metrics_listen.is_empty() && self.metrics_listen.parse::<SocketAddr>().is_err() {
+            problems.push(format!(
+                "metrics_listen {:?} must be an address:port or empty (off)",
+                self.metrics_listen
+            ));
+        }
+        if self.max_open_streams == 0 {
+            problems.push("max_open_streams must be at least 1".to_string());
+        }
+        let age = self.max_connection_age_s;
+        if !age.is_finite() || !(0.0..=604_800.0).contains(&age) {
+            problems.push(format!(
+                "max_connection_age_s = {age} must be 0 (never) to 604800 seconds"
+            ));
+        }
+        problems
+    }
+
+    /// The metrics endpoint address, `None` when off (or not parsable; `validate` reports it).
+    /// A fixed port becomes port 0 when `listen` itself uses port 0.
+    pub fn metrics_addr(&self) -> Option<SocketAddr> {
+        let mut addr: SocketAddr = self.metrics_listen.parse().ok()?;
+        if self.listen.port() == 0 {
+            addr.set_port(0);
+        }
+        Some(addr)
+    }
+
+    /// `max_connection_age_s` as a duration, `None` when connections never age out.
+    pub fn max_connection_age(&self) -> Option<Duration> {
+        (self.max_connection_age_s > 0.0)
+            .then(|| Duration::from_secs_f64(self.max_connection_age_s))
+    }
+
+    /// Whether authentication is on (a token file or a token variable is configured).
+    pub fn auth_enabled(&self) -> bool {
+        self.auth_tokens_file.is_some() || !self.auth_tokens_env.is_empty()
     }
 
     /// `request_timeout_s` as a duration.
@@ -393,6 +535,57 @@ mod tests {
             ..Config::default()
         };
         assert!(c.validate().is_err());
+    }
+
+    #[test]
+    fn security_keys_are_validated_together() {
+        let c = Config {
+            tls_cert_path: Some("/etc/startmargin/tls.crt".into()),
+            tls_client_ca_path: None,
+            auth_tokens_env: format!("{ENV_PREFIX}TOKENS"),
+            metrics_listen: "not an address".to_string(),
+            max_open_streams: 0,
+            max_connection_age_s: -1.0,
+            ..Config::default()
+        };
+        let Err(ConfigError::Invalid(problems)) = c.validate() else {
+            panic!("expected invalid")
+        };
+        let all = problems.join("\n");
+        for key in [
+            "tls_key_path",
+            "auth_tokens_env",
+            "metrics_listen",
+            "max_open_streams",
+            "max_connection_age_s",
+        ] {
+            assert!(all.contains(key), "{key} missing from {all}");
+        }
+        let c = Config {
+            tls_client_ca_path: Some("/etc/startmargin/ca.crt".into()),
+            ..Config::default()
+        };
+        assert!(
+            c.validate().is_err(),
+            "mutual TLS needs a server certificate"
+        );
+    }
+
+    #[test]
+    fn metrics_address_follows_an_ephemeral_api_port() {
+        let c = Config::default();
+        assert_eq!(c.metrics_addr(), DEFAULT_METRICS_LISTEN.parse().ok());
+        let c = Config {
+            listen: "127.0.0.1:0".parse().expect("addr"),
+            ..Config::default()
+        };
+        assert_eq!(c.metrics_addr().map(|a| a.port()), Some(0));
+        let c = Config {
+            metrics_listen: String::new(),
+            ..Config::default()
+        };
+        assert_eq!(c.metrics_addr(), None);
+        assert!(!Config::default().auth_enabled());
     }
 
     #[test]

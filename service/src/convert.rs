@@ -9,6 +9,9 @@ use std::sync::{Arc, OnceLock};
 use prost_types::{Duration, Timestamp};
 use startmargin_model::aids::GlowPlugs;
 use startmargin_model::archetypes::{self, AidConfig, CombustionSystem, EngineOverrides};
+use startmargin_model::assess::actions::{Action, ActionKind, ActionPolicy};
+use startmargin_model::assess::outlook::{OutlookThresholds, StartOutlook};
+use startmargin_model::assess::uncertainty::{self, Method, UncertaintySource};
 use startmargin_model::assess::{
     self, AssessOptions, Assessment, BatteryConfig, ForecastSeries, FuelConfig, LimitingFactor,
     Telemetry, VehicleNight,
@@ -18,12 +21,9 @@ use startmargin_model::fuel::{
     AdditiveTreatment, BiodieselFeedstock, ColdFlowProperties, FuelBase, FuelDescription,
 };
 use startmargin_model::gel_risk::{FuelPoint, GelRiskLevel};
-use startmargin_model::assess::actions::{Action, ActionKind, ActionPolicy};
-use startmargin_model::assess::outlook::{OutlookThresholds, StartOutlook};
-use startmargin_model::assess::uncertainty::{self, Method, UncertaintySource};
 use startmargin_model::ignition::DelayCorrelation;
-use startmargin_model::plug_in_plan::{self, DepotLimits, PlanMethod, PlugInCandidate};
 use startmargin_model::oil::SaeGrade;
+use startmargin_model::plug_in_plan::{self, DepotLimits, PlanMethod, PlugInCandidate};
 use startmargin_model::soak::{FilterMount, ForecastHour};
 use startmargin_proto::v1 as pb;
 
@@ -210,7 +210,7 @@ pub fn zone_forecast_from_pb(
     v.finish(())?;
     Ok((
         pb.zone_id.clone(),
-        Arc::new(series.unwrap_or_else(|| unreachable_forecast())),
+        Arc::new(series.unwrap_or_else(unreachable_forecast)),
     ))
 }
 
@@ -268,11 +268,10 @@ fn engine_from_pb(
             26.0,
             "",
         ),
-        cylinders: e.cylinders.map(|c| {
-            if !(1..=16).contains(&c) {
+        cylinders: e.cylinders.inspect(|c| {
+            if !(1..=16).contains(c) {
                 v.add(f("cylinders"), format!("{c} is outside 1 to 16"));
             }
-            c
         }),
         ivc_deg_abdc: v.opt_range(&f("ivc_deg_abdc"), e.ivc_deg_abdc, 0.0, 80.0, "°"),
         combustion: combustion_from_pb(e.combustion_system),
@@ -361,14 +360,13 @@ fn engine_from_pb(
         }
     };
     let mut overrides = overrides;
-    if e.archetype_id.is_empty() && overrides.starter_power_w.is_none() {
-        if let (Some(b), Some(s), Some(c)) =
+    if e.archetype_id.is_empty()
+        && overrides.starter_power_w.is_none()
+        && let (Some(b), Some(s), Some(c)) =
             (overrides.bore_m, overrides.stroke_m, overrides.cylinders)
-        {
-            let litres = std::f64::consts::FRAC_PI_4 * b * b * s * f64::from(c) * 1000.0;
-            overrides.starter_power_w =
-                Some((CUSTOM_STARTER_W_PER_L * litres).clamp(1_000.0, 9_000.0));
-        }
+    {
+        let litres = std::f64::consts::FRAC_PI_4 * b * b * s * f64::from(c) * 1000.0;
+        overrides.starter_power_w = Some((CUSTOM_STARTER_W_PER_L * litres).clamp(1_000.0, 9_000.0));
     }
     let engine = match archetypes::apply_overrides(&base_engine, &overrides) {
         Ok(engine) => engine,
@@ -732,10 +730,10 @@ pub fn night_from_pb(
         let _ = plan;
     }
     let options = options_from_pb(&mut v, night.options.as_ref(), &p("options"));
-    if let (Some(dep), Some(at)) = (departure_s, telemetry.observed_at_s) {
-        if at > dep {
-            v.add(p("telemetry.observed_at"), "is after the departure");
-        }
+    if let (Some(dep), Some(at)) = (departure_s, telemetry.observed_at_s)
+        && at > dep
+    {
+        v.add(p("telemetry.observed_at"), "is after the departure");
     }
     v.finish(())?;
     // Every Option below is Some when no violation was recorded.
@@ -774,7 +772,10 @@ pub struct Policy {
 
 impl Default for Policy {
     fn default() -> Self {
-        Self { thresholds: OutlookThresholds::default(), target_probability: ActionPolicy::default().target_probability }
+        Self {
+            thresholds: OutlookThresholds::default(),
+            target_probability: ActionPolicy::default().target_probability,
+        }
     }
 }
 
@@ -793,7 +794,12 @@ pub fn assess_pb(
 /// A stable key of the request for the deterministic sampling stream (FNV-1a of its encoding).
 fn request_key(night: &pb::VehicleNight) -> u64 {
     use prost::Message;
-    night.encode_to_vec().iter().fold(0xcbf2_9ce4_8422_2325_u64, |h, b| (h ^ u64::from(*b)).wrapping_mul(0x0100_0000_01b3))
+    night
+        .encode_to_vec()
+        .iter()
+        .fold(0xcbf2_9ce4_8422_2325_u64, |h, b| {
+            (h ^ u64::from(*b)).wrapping_mul(0x0100_0000_01b3)
+        })
 }
 
 /// Validates, converts, runs the model, the probability and the action search, and converts back.
@@ -824,6 +830,8 @@ pub fn decide(
     policy: &Policy,
 ) -> Result<Decided, ApiError> {
     let (vehicle_id, mut domain) = night_from_pb(night, path, zones)?;
+    // Model time for the metrics: the whole decision (assessment, probability, actions, plan).
+    let started = std::time::Instant::now();
     let model_err = |e| ApiError::from_model(path, e);
     let target = night
         .options
@@ -831,15 +839,19 @@ pub fn decide(
         .and_then(|o| o.target_no_start_pct)
         .map_or(policy.target_probability, |pct| pct / 100.0);
     let method = match night.options.as_ref().map(|o| o.probability_method()) {
-        Some(pb::ProbabilityMethod::Sampling) => {
-            Method::Sampling { samples: SAMPLING_SAMPLES, key: request_key(night) }
-        }
+        Some(pb::ProbabilityMethod::Sampling) => Method::Sampling {
+            samples: SAMPLING_SAMPLES,
+            key: request_key(night),
+        },
         _ => Method::SigmaPoints,
     };
     let a = assess::assess(&domain).map_err(model_err)?;
-    let p = uncertainty::no_start_probability(&domain, a.state_of_charge, method).map_err(model_err)?;
+    let p =
+        uncertainty::no_start_probability(&domain, a.state_of_charge, method).map_err(model_err)?;
     let mut actions = Vec::new();
-    let action_policy = ActionPolicy { target_probability: target };
+    let action_policy = ActionPolicy {
+        target_probability: target,
+    };
     assess::actions::recommend(&domain, &a, &action_policy, &mut actions).map_err(model_err)?;
     let outlook = policy.thresholds.outlook(p.probability, a.gel.level);
 
@@ -854,12 +866,18 @@ pub fn decide(
                     let mut n = domain.clone();
                     n.block_heater_plan = None;
                     let a0 = assess::assess(&n).map_err(model_err)?;
-                    (uncertainty::no_start_probability(&n, a0.state_of_charge, method).map_err(model_err)?.probability, a0.margin_k)
+                    (
+                        uncertainty::no_start_probability(&n, a0.state_of_charge, method)
+                            .map_err(model_err)?
+                            .probability,
+                        a0.margin_k,
+                    )
                 } else {
                     (p.probability, a.margin_k)
                 };
                 domain.block_heater_plan = Some((plug_s, domain.departure_s));
-                let with = uncertainty::no_start_probability(&domain, a.state_of_charge, method).map_err(model_err)?;
+                let with = uncertainty::no_start_probability(&domain, a.state_of_charge, method)
+                    .map_err(model_err)?;
                 Some(PlugInCandidate {
                     p_without: without.0,
                     p_with: with.probability,
@@ -879,6 +897,7 @@ pub fn decide(
     message.no_start_standard_error_pct = p.standard_error * 100.0;
     message.depot_id = night.depot_id.clone();
     message.actions = actions.iter().map(action_to_pb).collect();
+    crate::metrics::record_model_time(started.elapsed());
     Ok(Decided { message, plug_in })
 }
 
@@ -936,13 +955,30 @@ pub fn depot_from_pb(d: &pb::DepotOutlets, path: &str) -> Result<(String, DepotL
     if d.outlet_count > 100_000 {
         v.add(format!("{path}.outlet_count"), "at most 100000 outlets");
     }
-    let limit = v.opt_range(&format!("{path}.circuit_limit_kw"), d.circuit_limit_kw, 0.0, 10_000.0, "kW");
+    let limit = v.opt_range(
+        &format!("{path}.circuit_limit_kw"),
+        d.circuit_limit_kw,
+        0.0,
+        10_000.0,
+        "kW",
+    );
     v.finish(())?;
-    Ok((d.depot_id.clone(), DepotLimits { outlets: d.outlet_count, circuit_limit_w: limit.map(|k| k * 1000.0) }))
+    Ok((
+        d.depot_id.clone(),
+        DepotLimits {
+            outlets: d.outlet_count,
+            circuit_limit_w: limit.map(|k| k * 1000.0),
+        },
+    ))
 }
 
 /// The depot's plan as the API message. `vehicles[i]` and `candidates[i]` belong together.
-pub fn plan_to_pb(depot_id: &str, limits: &DepotLimits, vehicles: &[String], candidates: &[PlugInCandidate]) -> pb::PlugInPlan {
+pub fn plan_to_pb(
+    depot_id: &str,
+    limits: &DepotLimits,
+    vehicles: &[String],
+    candidates: &[PlugInCandidate],
+) -> pb::PlugInPlan {
     let plan = plug_in_plan::plan(candidates, limits);
     let coldest = plug_in_plan::coldest_first(candidates, limits);
     pb::PlugInPlan {

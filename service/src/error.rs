@@ -39,7 +39,10 @@ pub enum ApiError {
 }
 
 fn summary(v: &[FieldViolation]) -> String {
-    v.iter().map(|f| format!("{}: {}", f.field, f.description)).collect::<Vec<_>>().join("; ")
+    v.iter()
+        .map(|f| format!("{}: {}", f.field, f.description))
+        .collect::<Vec<_>>()
+        .join("; ")
 }
 
 impl ApiError {
@@ -98,7 +101,8 @@ impl From<ApiError> for tonic::Status {
 pub fn to_rpc_status(e: ApiError) -> startmargin_proto::google::rpc::Status {
     let status: tonic::Status = e.into();
     // `details()` holds an encoded google.rpc.Status with the BadRequest in its details.
-    let decoded = <startmargin_proto::google::rpc::Status as prost::Message>::decode(status.details());
+    let decoded =
+        <startmargin_proto::google::rpc::Status as prost::Message>::decode(status.details());
     match decoded {
         Ok(mut s) if s.code != 0 => {
             s.message = status.message().to_string();
@@ -118,11 +122,15 @@ mod tests {
 
     #[test]
     fn invalid_argument_carries_field_violations() {
-        let s: tonic::Status = ApiError::field("night.forecast.points[2].air_c", "must be finite").into();
+        let s: tonic::Status =
+            ApiError::field("night.forecast.points[2].air_c", "must be finite").into();
         assert_eq!(s.code(), Code::InvalidArgument);
         let details = s.get_error_details();
         let br = details.bad_request().expect("BadRequest details");
-        assert_eq!(br.field_violations[0].field, "night.forecast.points[2].air_c");
+        assert_eq!(
+            br.field_violations[0].field,
+            "night.forecast.points[2].air_c"
+        );
     }
 
     #[test]
@@ -138,7 +146,10 @@ mod tests {
     fn forecast_too_short_is_failed_precondition() {
         let e = ApiError::from_model(
             "night",
-            ModelError::ForecastTooShort { covered_until_s: 1.0, requested_s: 2.0 },
+            ModelError::ForecastTooShort {
+                covered_until_s: 1.0,
+                requested_s: 2.0,
+            },
         );
         assert_eq!(e.code(), Code::FailedPrecondition);
     }

@@ -14,12 +14,16 @@
 #![forbid(unsafe_code)]
 
 pub mod api;
+pub mod auth;
 pub mod config;
 pub mod convert;
 pub mod error;
 pub mod metrics;
+pub mod metrics_http;
 pub mod server;
 pub mod tenant;
+pub mod tls;
+pub mod watch;
 
 pub use config::Config;
 pub use server::{RunningServer, spawn, spawn_on_loopback};

@@ -30,6 +30,9 @@ enum Command {
     Serve,
     /// Print the effective configuration as TOML and exit (64 when it is invalid).
     CheckConfig,
+    /// Ask the local server whether it serves (gRPC health; `/healthz` with TLS): exit 0 when it
+    /// does, 1 otherwise. For container health checks without a shell.
+    HealthCheck,
 }
 
 fn main() -> ExitCode {
@@ -52,6 +55,25 @@ fn main() -> ExitCode {
                 ExitCode::FAILURE
             }
         },
+        Command::HealthCheck => {
+            let probe = tokio::runtime::Builder::new_current_thread()
+                .enable_all()
+                .build()
+                .map_err(anyhow::Error::from)
+                .and_then(|rt| {
+                    rt.block_on(startmargin_service::server::probe(
+                        &config,
+                        std::time::Duration::from_secs(3),
+                    ))
+                });
+            match probe {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) => {
+                    eprintln!("startmargind: unhealthy: {e:#}");
+                    ExitCode::FAILURE
+                }
+            }
+        }
         Command::Serve => {
             init_tracing(&config);
             let runtime = match tokio::runtime::Builder::new_multi_thread()
@@ -93,7 +115,7 @@ async fn serve(config: Config) -> anyhow::Result<()> {
     let signal = shutdown_signal()?;
     let effective = serde_json::to_string(&config)?;
     let server = startmargin_service::spawn(config).await?;
-    // No secrets in the configuration yet; redact here when some are added.
+    // The configuration holds paths and variable names only, never a token or a key.
     info!(addr = %server.addr, config = %effective, version = env!("CARGO_PKG_VERSION"), "startmargind started");
     let signal = signal.await;
     info!(signal, "shutdown requested; draining");

@@ -8,11 +8,18 @@ use std::sync::atomic::{AtomicI64, AtomicU64, Ordering};
 use std::time::Duration;
 
 /// RPCs we count.
-pub const RPCS: [&str; 4] = ["AssessVehicle", "AssessFleet", "WatchFleet", "DescribeModel"];
+pub const RPCS: [&str; 4] = [
+    "AssessVehicle",
+    "AssessFleet",
+    "WatchFleet",
+    "DescribeModel",
+];
 /// Status codes we count (tonic::Code as i32 indexes this table, 0..=16).
 const CODES: usize = 17;
 /// Latency histogram bucket upper bounds, seconds.
-pub const LATENCY_BUCKETS_S: [f64; 10] = [0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.5, 2.5];
+pub const LATENCY_BUCKETS_S: [f64; 10] = [
+    0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.5, 2.5,
+];
 
 struct Rpc {
     calls_by_code: [AtomicU64; CODES],
@@ -40,7 +47,9 @@ static MODEL_TIME_NS: AtomicU64 = AtomicU64::new(0);
 
 /// Records one finished call of `rpc` with its status code and latency.
 pub fn record_call(rpc: &str, code: tonic::Code, latency: Duration) {
-    let Some(i) = RPCS.iter().position(|r| *r == rpc) else { return };
+    let Some(i) = RPCS.iter().position(|r| *r == rpc) else {
+        return;
+    };
     let r = &CALLS[i];
     r.calls_by_code[(code as usize).min(CODES - 1)].fetch_add(1, Ordering::Relaxed);
     let s = latency.as_secs_f64();
@@ -50,13 +59,19 @@ pub fn record_call(rpc: &str, code: tonic::Code, latency: Duration) {
         }
     }
     r.latency_count.fetch_add(1, Ordering::Relaxed);
-    r.latency_sum_ns.fetch_add(latency.as_nanos().min(u128::from(u64::MAX)) as u64, Ordering::Relaxed);
+    r.latency_sum_ns.fetch_add(
+        latency.as_nanos().min(u128::from(u64::MAX)) as u64,
+        Ordering::Relaxed,
+    );
 }
 
 /// Records one model assessment and the time it took.
 pub fn record_model_time(elapsed: Duration) {
     ASSESSMENTS.fetch_add(1, Ordering::Relaxed);
-    MODEL_TIME_NS.fetch_add(elapsed.as_nanos().min(u128::from(u64::MAX)) as u64, Ordering::Relaxed);
+    MODEL_TIME_NS.fetch_add(
+        elapsed.as_nanos().min(u128::from(u64::MAX)) as u64,
+        Ordering::Relaxed,
+    );
 }
 
 /// Changes the number of vehicles watched by `delta`.
@@ -86,35 +101,92 @@ fn code_name(i: usize) -> String {
 /// The exposition text of every metric.
 pub fn render() -> String {
     let mut out = String::new();
-    let _ = writeln!(out, "# HELP startmargin_calls_total Finished calls by RPC and status code.");
+    let _ = writeln!(
+        out,
+        "# HELP startmargin_calls_total Finished calls by RPC and status code."
+    );
     let _ = writeln!(out, "# TYPE startmargin_calls_total counter");
     for (rpc, r) in RPCS.iter().zip(&CALLS) {
         for (i, c) in r.calls_by_code.iter().enumerate() {
             let n = c.load(Ordering::Relaxed);
             if n > 0 {
-                let _ = writeln!(out, "startmargin_calls_total{{rpc=\"{rpc}\",code=\"{}\"}} {n}", code_name(i));
+                let _ = writeln!(
+                    out,
+                    "startmargin_calls_total{{rpc=\"{rpc}\",code=\"{}\"}} {n}",
+                    code_name(i)
+                );
             }
         }
     }
-    let _ = writeln!(out, "# HELP startmargin_call_duration_seconds Call latency by RPC.");
+    let _ = writeln!(
+        out,
+        "# HELP startmargin_call_duration_seconds Call latency by RPC."
+    );
     let _ = writeln!(out, "# TYPE startmargin_call_duration_seconds histogram");
     for (rpc, r) in RPCS.iter().zip(&CALLS) {
         for (b, bound) in r.latency_buckets.iter().zip(LATENCY_BUCKETS_S) {
-            let _ = writeln!(out, "startmargin_call_duration_seconds_bucket{{rpc=\"{rpc}\",le=\"{bound}\"}} {}", b.load(Ordering::Relaxed));
+            let _ = writeln!(
+                out,
+                "startmargin_call_duration_seconds_bucket{{rpc=\"{rpc}\",le=\"{bound}\"}} {}",
+                b.load(Ordering::Relaxed)
+            );
         }
         let count = r.latency_count.load(Ordering::Relaxed);
-        let _ = writeln!(out, "startmargin_call_duration_seconds_bucket{{rpc=\"{rpc}\",le=\"+Inf\"}} {count}");
-        let _ = writeln!(out, "startmargin_call_duration_seconds_sum{{rpc=\"{rpc}\"}} {}", r.latency_sum_ns.load(Ordering::Relaxed) as f64 * 1e-9);
-        let _ = writeln!(out, "startmargin_call_duration_seconds_count{{rpc=\"{rpc}\"}} {count}");
+        let _ = writeln!(
+            out,
+            "startmargin_call_duration_seconds_bucket{{rpc=\"{rpc}\",le=\"+Inf\"}} {count}"
+        );
+        let _ = writeln!(
+            out,
+            "startmargin_call_duration_seconds_sum{{rpc=\"{rpc}\"}} {}",
+            r.latency_sum_ns.load(Ordering::Relaxed) as f64 * 1e-9
+        );
+        let _ = writeln!(
+            out,
+            "startmargin_call_duration_seconds_count{{rpc=\"{rpc}\"}} {count}"
+        );
     }
     let gauge = |out: &mut String, name: &str, help: &str, kind: &str, v: String| {
-        let _ = writeln!(out, "# HELP {name} {help}\n# TYPE {name} {kind}\n{name} {v}");
+        let _ = writeln!(
+            out,
+            "# HELP {name} {help}\n# TYPE {name} {kind}\n{name} {v}"
+        );
     };
-    gauge(&mut out, "startmargin_vehicles_watched", "Vehicles held by open WatchFleet streams.", "gauge", VEHICLES_WATCHED.load(Ordering::Relaxed).to_string());
-    gauge(&mut out, "startmargin_alerts_raised_total", "Alerts raised by WatchFleet.", "counter", ALERTS_RAISED.load(Ordering::Relaxed).to_string());
-    gauge(&mut out, "startmargin_alerts_cleared_total", "Alerts cleared by WatchFleet.", "counter", ALERTS_CLEARED.load(Ordering::Relaxed).to_string());
-    gauge(&mut out, "startmargin_assessments_total", "Model assessments run.", "counter", ASSESSMENTS.load(Ordering::Relaxed).to_string());
-    gauge(&mut out, "startmargin_model_seconds_total", "Time spent in the model.", "counter", (MODEL_TIME_NS.load(Ordering::Relaxed) as f64 * 1e-9).to_string());
+    gauge(
+        &mut out,
+        "startmargin_vehicles_watched",
+        "Vehicles held by open WatchFleet streams.",
+        "gauge",
+        VEHICLES_WATCHED.load(Ordering::Relaxed).to_string(),
+    );
+    gauge(
+        &mut out,
+        "startmargin_alerts_raised_total",
+        "Alerts raised by WatchFleet.",
+        "counter",
+        ALERTS_RAISED.load(Ordering::Relaxed).to_string(),
+    );
+    gauge(
+        &mut out,
+        "startmargin_alerts_cleared_total",
+        "Alerts cleared by WatchFleet.",
+        "counter",
+        ALERTS_CLEARED.load(Ordering::Relaxed).to_string(),
+    );
+    gauge(
+        &mut out,
+        "startmargin_assessments_total",
+        "Model assessments run.",
+        "counter",
+        ASSESSMENTS.load(Ordering::Relaxed).to_string(),
+    );
+    gauge(
+        &mut out,
+        "startmargin_model_seconds_total",
+        "Time spent in the model.",
+        "counter",
+        (MODEL_TIME_NS.load(Ordering::Relaxed) as f64 * 1e-9).to_string(),
+    );
     out
 }
 
@@ -128,7 +200,9 @@ mod tests {
         alert_raised();
         let text = render();
         assert!(text.contains("startmargin_calls_total{rpc=\"DescribeModel\",code=\"Ok\"}"));
-        assert!(text.contains("startmargin_call_duration_seconds_bucket{rpc=\"DescribeModel\",le=\"0.001\"}"));
+        assert!(text.contains(
+            "startmargin_call_duration_seconds_bucket{rpc=\"DescribeModel\",le=\"0.001\"}"
+        ));
         assert!(text.contains("# TYPE startmargin_alerts_raised_total counter"));
         // Unknown RPC names are ignored rather than panicking.
         record_call("NoSuchRpc", tonic::Code::Ok, Duration::ZERO);

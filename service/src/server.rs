@@ -6,14 +6,23 @@
 //! connection forever): health turns NOT_SERVING first, a cancellation token then ends every open
 //! stream (fleet streams and health watches) with UNAVAILABLE "server is draining", the listener
 //! closes, unary calls in flight finish, and after `drain_timeout_s` the server stops regardless.
+//!
+//! Production layers: TLS (optionally mutual) from [`crate::tls`]; bearer-token authentication
+//! from [`crate::auth`] (health and reflection stay open); a [`CallLayer`] that records every API
+//! call's status code and latency in [`crate::metrics`] and refuses streams beyond
+//! `max_open_streams` at once with RESOURCE_EXHAUSTED; the Prometheus endpoint of
+//! [`crate::metrics_http`] on `metrics_listen`.
 
 use std::net::SocketAddr;
-use std::time::Duration;
+use std::pin::Pin;
+use std::sync::Arc;
+use std::task::{Context, Poll};
+use std::time::{Duration, Instant};
 
 use anyhow::Context as _;
 use startmargin_proto::v1::start_margin_service_server::StartMarginServiceServer;
 use tokio::net::TcpListener;
-use tokio::sync::{mpsc, oneshot};
+use tokio::sync::{OwnedSemaphorePermit, Semaphore, mpsc, oneshot};
 use tokio::task::JoinHandle;
 use tokio_stream::StreamExt as _;
 use tokio_stream::wrappers::ReceiverStream;
@@ -29,7 +38,9 @@ use tonic_health::server::{HealthReporter, HealthService};
 use tracing::{info, warn};
 
 use crate::api::{DRAINING_MESSAGE, StartMarginApi};
+use crate::auth::{AuthLayer, TokenTable};
 use crate::config::Config;
+use crate::metrics;
 
 /// Fully qualified name of the API service, as health checks and reflection name it.
 pub const SERVICE_NAME: &str = <StartMarginServiceServer<StartMarginApi> as NamedService>::NAME;
@@ -39,6 +50,8 @@ pub const SERVICE_NAME: &str = <StartMarginServiceServer<StartMarginApi> as Name
 pub struct RunningServer {
     /// The bound address (with the real port when the configuration asked for port 0).
     pub addr: SocketAddr,
+    /// The bound address of the metrics endpoint, `None` when it is off.
+    pub metrics_addr: Option<SocketAddr>,
     shutdown: CancellationToken,
     task: JoinHandle<anyhow::Result<()>>,
 }
@@ -65,6 +78,8 @@ impl RunningServer {
 /// Binds `config.listen` (use port 0 for a free port), starts the server and returns at once.
 pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
     config.validate()?;
+    let tls = crate::tls::server_tls_config(&config)?;
+    let tokens = TokenTable::from_config(&config)?;
     let listener = TcpListener::bind(config.listen)
         .await
         .with_context(|| format!("cannot listen on {}", config.listen))?;
@@ -100,7 +115,22 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
         .build_v1alpha()
         .context("cannot build reflection v1alpha")?;
 
-    let router = Server::builder()
+    let mut builder = Server::builder();
+    if let Some(age) = config.max_connection_age() {
+        // GOAWAY at that age; calls in flight get the drain deadline to finish.
+        builder = builder
+            .max_connection_age(age)
+            .max_connection_age_grace(config.drain_timeout());
+    }
+    if let Some(tls) = tls {
+        builder = builder
+            .tls_config(tls)
+            .context("invalid TLS certificate or key")?;
+    }
+    let auth_on = tokens.is_some();
+    let router = builder
+        .layer(CallLayer::new(config.max_open_streams))
+        .layer(AuthLayer::new(tokens))
         .max_concurrent_streams(config.max_concurrent_streams)
         .http2_keepalive_interval(config.http2_keepalive_interval())
         .http2_keepalive_timeout(Some(config.http2_keepalive_timeout()))
@@ -114,9 +144,22 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
         let _ = stop_rx.await;
     }));
 
+    let stop_metrics = CancellationToken::new();
+    let metrics_server = match config.metrics_addr() {
+        Some(metrics_addr) => Some(
+            crate::metrics_http::spawn(metrics_addr, draining.clone(), stop_metrics.clone())
+                .await
+                .with_context(|| format!("cannot listen for metrics on {metrics_addr}"))?,
+        ),
+        None => None,
+    };
+    let metrics_addr = metrics_server.as_ref().map(|m| m.addr);
+
     let drain_timeout = config.drain_timeout();
     let token = shutdown.clone();
     let task = tokio::spawn(async move {
+        // The metrics endpoint lives as long as the server, through the drain.
+        let _stop_metrics = stop_metrics.drop_guard();
         tokio::select! {
             () = token.cancelled() => {}
             ended = &mut serve => {
@@ -126,9 +169,10 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
         }
         drain(&reporter, &draining, stop_tx, serve, drain_timeout).await
     });
-    info!(%addr, "startmargin listening");
+    info!(%addr, ?metrics_addr, tls = config.tls_cert_path.is_some(), mutual_tls = config.tls_client_ca_path.is_some(), auth = auth_on, "startmargin listening");
     Ok(RunningServer {
         addr,
+        metrics_addr,
         shutdown,
         task,
     })
@@ -234,4 +278,230 @@ impl Health for DrainAwareHealth {
         });
         Ok(Response::new(ReceiverStream::new(rx)))
     }
+}
+
+/// Path prefix of the API's RPCs.
+const API_PATH_PREFIX: &str = "/startmargin.v1.StartMarginService/";
+/// RPCs that are long-lived streams, limited by `max_open_streams`.
+const STREAMING_RPCS: [&str; 2] = ["AssessFleet", "WatchFleet"];
+
+/// Tower layer, outermost: records each API call's status code and latency (for streams, the
+/// stream's lifetime) in [`crate::metrics`], and refuses a streaming call at once with
+/// RESOURCE_EXHAUSTED when `max_open_streams` streams are already open.
+#[derive(Debug, Clone)]
+pub struct CallLayer {
+    open_streams: Arc<Semaphore>,
+}
+
+impl CallLayer {
+    /// A layer allowing `max_open_streams` streams at once.
+    pub fn new(max_open_streams: usize) -> Self {
+        Self {
+            open_streams: Arc::new(Semaphore::new(max_open_streams)),
+        }
+    }
+}
+
+impl<S> tower::Layer<S> for CallLayer {
+    type Service = Call<S>;
+
+    fn layer(&self, inner: S) -> Self::Service {
+        Call {
+            inner,
+            open_streams: self.open_streams.clone(),
+        }
+    }
+}
+
+/// The service of [`CallLayer`].
+#[derive(Debug, Clone)]
+pub struct Call<S> {
+    inner: S,
+    open_streams: Arc<Semaphore>,
+}
+
+type BoxFuture<T> = Pin<Box<dyn Future<Output = T> + Send>>;
+
+impl<S, B> tower::Service<http::Request<B>> for Call<S>
+where
+    S: tower::Service<http::Request<B>, Response = http::Response<tonic::body::Body>>,
+    S::Future: Send + 'static,
+{
+    type Response = http::Response<tonic::body::Body>;
+    type Error = S::Error;
+    type Future = BoxFuture<Result<Self::Response, Self::Error>>;
+
+    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
+        self.inner.poll_ready(cx)
+    }
+
+    fn call(&mut self, request: http::Request<B>) -> Self::Future {
+        let start = Instant::now();
+        let rpc = request
+            .uri()
+            .path()
+            .strip_prefix(API_PATH_PREFIX)
+            .and_then(|name| metrics::RPCS.iter().copied().find(|r| *r == name));
+        let Some(rpc) = rpc else {
+            // Health, reflection and unknown paths: not counted.
+            return Box::pin(self.inner.call(request));
+        };
+        let mut permit = None;
+        if STREAMING_RPCS.contains(&rpc) {
+            match self.open_streams.clone().try_acquire_owned() {
+                Ok(p) => permit = Some(p),
+                Err(_) => {
+                    metrics::record_call(rpc, tonic::Code::ResourceExhausted, start.elapsed());
+                    let response = tonic::Status::resource_exhausted(
+                        "too many streams open on this server; retry later or elsewhere",
+                    )
+                    .into_http();
+                    return Box::pin(async move { Ok(response) });
+                }
+            }
+        }
+        let future = self.inner.call(request);
+        Box::pin(async move {
+            let response = future.await?;
+            let header_code = response
+                .headers()
+                .get("grpc-status")
+                .map(|v| tonic::Code::from_bytes(v.as_bytes()));
+            Ok(response.map(|inner| {
+                tonic::body::Body::new(RecordedBody {
+                    inner,
+                    rpc,
+                    start,
+                    code: header_code,
+                    recorded: false,
+                    _permit: permit,
+                })
+            }))
+        })
+    }
+}
+
+/// A response body that records the call when its trailers (or its end, or its drop) come.
+struct RecordedBody {
+    inner: tonic::body::Body,
+    rpc: &'static str,
+    start: Instant,
+    code: Option<tonic::Code>,
+    recorded: bool,
+    _permit: Option<OwnedSemaphorePermit>,
+}
+
+impl RecordedBody {
+    fn record(&mut self, fallback: tonic::Code) {
+        if !self.recorded {
+            self.recorded = true;
+            metrics::record_call(
+                self.rpc,
+                self.code.unwrap_or(fallback),
+                self.start.elapsed(),
+            );
+        }
+    }
+}
+
+impl http_body::Body for RecordedBody {
+    type Data = <tonic::body::Body as http_body::Body>::Data;
+    type Error = <tonic::body::Body as http_body::Body>::Error;
+
+    fn poll_frame(
+        mut self: Pin<&mut Self>,
+        cx: &mut Context<'_>,
+    ) -> Poll<Option<Result<http_body::Frame<Self::Data>, Self::Error>>> {
+        let polled = Pin::new(&mut self.inner).poll_frame(cx);
+        match &polled {
+            Poll::Ready(Some(Ok(frame))) => {
+                if let Some(code) = frame
+                    .trailers_ref()
+                    .and_then(|t| t.get("grpc-status"))
+                    .map(|v| tonic::Code::from_bytes(v.as_bytes()))
+                {
+                    self.code = Some(code);
+                    self.record(code);
+                }
+            }
+            Poll::Ready(Some(Err(status))) => {
+                let code = status.code();
+                self.code.get_or_insert(code);
+                self.record(code);
+            }
+            Poll::Ready(None) => self.record(tonic::Code::Ok),
+            Poll::Pending => {}
+        }
+        polled
+    }
+
+    fn is_end_stream(&self) -> bool {
+        self.inner.is_end_stream()
+    }
+
+    fn size_hint(&self) -> http_body::SizeHint {
+        self.inner.size_hint()
+    }
+}
+
+impl Drop for RecordedBody {
+    fn drop(&mut self) {
+        // Dropped before its end: the client went away.
+        self.record(tonic::Code::Cancelled);
+    }
+}
+
+/// The container health check (`startmargind health-check`): asks the server named by `config`
+/// on the loopback interface whether it serves. Without TLS it uses the gRPC health protocol on
+/// `listen`; with TLS it asks `GET /healthz` on the metrics endpoint (which must then be on).
+pub async fn probe(config: &Config, timeout: Duration) -> anyhow::Result<()> {
+    let loopback = |mut addr: SocketAddr| {
+        if addr.ip().is_unspecified() {
+            addr.set_ip(std::net::Ipv4Addr::LOCALHOST.into());
+        }
+        addr
+    };
+    let check = async {
+        if config.tls_cert_path.is_none() {
+            let addr = loopback(config.listen);
+            let channel = tonic::transport::Channel::from_shared(format!("http://{addr}"))?
+                .connect()
+                .await
+                .with_context(|| format!("cannot connect to {addr}"))?;
+            let status = tonic_health::pb::health_client::HealthClient::new(channel)
+                .check(HealthCheckRequest {
+                    service: SERVICE_NAME.to_string(),
+                })
+                .await?
+                .into_inner()
+                .status;
+            anyhow::ensure!(
+                status == health_check_response::ServingStatus::Serving as i32,
+                "not serving (status {status})"
+            );
+            Ok(())
+        } else {
+            use tokio::io::{AsyncReadExt as _, AsyncWriteExt as _};
+            let addr = loopback(config.metrics_listen.parse().context(
+                "with TLS on, the health check needs the metrics endpoint (metrics_listen)",
+            )?);
+            let mut stream = tokio::net::TcpStream::connect(addr)
+                .await
+                .with_context(|| format!("cannot connect to {addr}"))?;
+            stream
+                .write_all(b"GET /healthz HTTP/1.1\r\nhost: localhost\r\n\r\n")
+                .await?;
+            let mut response = Vec::new();
+            stream.read_to_end(&mut response).await?;
+            anyhow::ensure!(
+                response.starts_with(b"HTTP/1.1 200"),
+                "not serving: {}",
+                String::from_utf8_lossy(response.split(|&b| b == b'\r').next().unwrap_or_default())
+            );
+            Ok(())
+        }
+    };
+    tokio::time::timeout(timeout, check)
+        .await
+        .context("the health check timed out")?
 }

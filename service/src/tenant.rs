@@ -24,5 +24,9 @@ impl Tenant {
 
 /// The tenant of a request (the default tenant when authentication is off).
 pub fn tenant_of<T>(request: &tonic::Request<T>) -> Tenant {
-    request.extensions().get::<Tenant>().cloned().unwrap_or_default()
+    request
+        .extensions()
+        .get::<Tenant>()
+        .cloned()
+        .unwrap_or_default()
 }

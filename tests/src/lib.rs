@@ -237,3 +237,30 @@ pub fn assert_budget_sums(assessment: &pb::VehicleAssessment, tolerance_k: f64) 
         assessment.start_margin_k
     );
 }
+
+/// `message` as a request carrying `authorization: Bearer <token>`.
+pub fn with_token<T>(message: T, token: &str) -> tonic::Request<T> {
+    let mut request = tonic::Request::new(message);
+    let value = format!("Bearer {token}")
+        .parse()
+        .expect("a token is valid header text");
+    request.metadata_mut().insert("authorization", value);
+    request
+}
+
+/// The loopback configuration with bearer-token authentication: `tokens` (tenant id, token) are
+/// written to a token file in a fresh temporary folder named after `name`.
+pub fn auth_config(name: &str, tokens: &[(&str, &str)]) -> Config {
+    let dir = std::env::temp_dir().join(format!("startmargin-auth-{name}-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temp dir");
+    let path = dir.join("tokens");
+    let text: String = tokens
+        .iter()
+        .map(|(tenant, token)| format!("{tenant}:{token}\n"))
+        .collect();
+    std::fs::write(&path, format!("# test tokens\n{text}")).expect("write the token file");
+    Config {
+        auth_tokens_file: Some(path),
+        ..loopback_config()
+    }
+}

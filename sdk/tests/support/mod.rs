@@ -179,6 +179,17 @@ impl srv::StartMarginService for Mock {
         )))
     }
 
+    type WatchFleetStream =
+        std::pin::Pin<Box<dyn Stream<Item = Result<api::WatchFleetResponse, Status>> + Send>>;
+
+    async fn watch_fleet(
+        &self,
+        request: Request<Streaming<api::WatchFleetRequest>>,
+    ) -> Result<Response<Self::WatchFleetStream>, Status> {
+        self.gate(&request).await?;
+        Err(Status::unimplemented("the mock server does not watch"))
+    }
+
     async fn describe_model(
         &self,
         request: Request<api::DescribeModelRequest>,

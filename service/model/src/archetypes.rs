@@ -129,8 +129,12 @@ const fn glow_plugs(plateau_gain_k: f64, preheat_time_constant_s: f64) -> Option
     })
 }
 
-const NO_AIDS: AidConfig =
-    AidConfig { glow_plugs: None, glow_preheat_s: 0.0, intake_heater_w: 0.0, block_heater_w: 0.0 };
+const NO_AIDS: AidConfig = AidConfig {
+    glow_plugs: None,
+    glow_preheat_s: 0.0,
+    intake_heater_w: 0.0,
+    block_heater_w: 0.0,
+};
 
 #[allow(clippy::too_many_arguments)]
 const fn engine(
@@ -146,7 +150,8 @@ const fn engine(
     let bore_m = bore_mm / 1000.0;
     let stroke_m = stroke_mm / 1000.0;
     // Displacement in litres, for the thermal-mass rule of thumb (≈ 50 kJ/K per litre, estimate).
-    let litres = 0.785_398_163_397_448_3 * bore_m * bore_m * stroke_m * cylinders as f64 * 1000.0;
+    let litres =
+        std::f64::consts::FRAC_PI_4 * bore_m * bore_m * stroke_m * cylinders as f64 * 1000.0;
     EngineConfig {
         geometry: EngineGeometry {
             bore_m,
@@ -180,43 +185,71 @@ pub const ARCHETYPES: &[Archetype] = &[
         id: "compact-di-i4",
         description: "Compact direct-injection inline-4, 2.0 L class (passenger car, small van)",
         engine: engine(84.0, 90.0, 16.5, 4, DirectInjection, 1_800.0, 80.0, 30.0),
-        aids: AidConfig { glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_DI_K, DEFAULT_GLOW_TIME_CONSTANT_S), glow_preheat_s: 5.0, ..NO_AIDS },
+        aids: AidConfig {
+            glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_DI_K, DEFAULT_GLOW_TIME_CONSTANT_S),
+            glow_preheat_s: 5.0,
+            ..NO_AIDS
+        },
     },
     Archetype {
         id: "light-di-v8",
         description: "Light-duty direct-injection V8 pickup engine, 6.6 L class, compression 17.5",
         engine: engine(103.0, 99.0, 17.5, 8, DirectInjection, 2_800.0, 100.0, 30.0),
-        aids: AidConfig { glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_DI_K, DEFAULT_GLOW_TIME_CONSTANT_S), glow_preheat_s: 5.0, ..NO_AIDS },
+        aids: AidConfig {
+            glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_DI_K, DEFAULT_GLOW_TIME_CONSTANT_S),
+            glow_preheat_s: 5.0,
+            ..NO_AIDS
+        },
     },
     Archetype {
         id: "medium-di-i6",
         description: "Medium-duty direct-injection inline-6, 7 L class (bus, delivery truck)",
         engine: engine(107.0, 127.0, 17.3, 6, DirectInjection, 5_500.0, 100.0, 30.0),
-        aids: AidConfig { intake_heater_w: 1_800.0, ..NO_AIDS },
+        aids: AidConfig {
+            intake_heater_w: 1_800.0,
+            ..NO_AIDS
+        },
     },
     Archetype {
         id: "heavy-di-i6",
         description: "Heavy-duty direct-injection inline-6, 13 L class (tractor, plow)",
         engine: engine(131.0, 160.0, 16.8, 6, DirectInjection, 7_500.0, 100.0, 30.0),
-        aids: AidConfig { intake_heater_w: 2_500.0, ..NO_AIDS },
+        aids: AidConfig {
+            intake_heater_w: 2_500.0,
+            ..NO_AIDS
+        },
     },
     Archetype {
         id: "older-idi-v8",
         description: "Older indirect-injection (prechamber) light-truck V8, 7.3 L class",
         engine: engine(104.0, 106.0, 21.5, 8, Prechamber, 2_500.0, 80.0, 35.0),
-        aids: AidConfig { glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_PRECHAMBER_K, OLDER_GLOW_TIME_CONSTANT_S), glow_preheat_s: 10.0, ..NO_AIDS },
+        aids: AidConfig {
+            glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_PRECHAMBER_K, OLDER_GLOW_TIME_CONSTANT_S),
+            glow_preheat_s: 10.0,
+            ..NO_AIDS
+        },
     },
     Archetype {
         id: "swirl-idi-i4",
         description: "Swirl-chamber indirect-injection inline-4, 2.5 L class (older pickup, van)",
         engine: engine(91.0, 96.0, 21.0, 4, SwirlChamber, 1_800.0, 80.0, 35.0),
-        aids: AidConfig { glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_SWIRL_CHAMBER_K, OLDER_GLOW_TIME_CONSTANT_S), glow_preheat_s: 8.0, ..NO_AIDS },
+        aids: AidConfig {
+            glow_plugs: glow_plugs(
+                GLOW_PLATEAU_GAIN_SWIRL_CHAMBER_K,
+                OLDER_GLOW_TIME_CONSTANT_S,
+            ),
+            glow_preheat_s: 8.0,
+            ..NO_AIDS
+        },
     },
     Archetype {
         id: "offroad-di-i4",
         description: "Off-road direct-injection inline-4, 4.5 L class (loader, tractor, generator)",
         engine: engine(106.0, 127.0, 17.0, 4, DirectInjection, 3_000.0, 100.0, 30.0),
-        aids: AidConfig { intake_heater_w: 1_500.0, ..NO_AIDS },
+        aids: AidConfig {
+            intake_heater_w: 1_500.0,
+            ..NO_AIDS
+        },
     },
 ];
 
@@ -260,20 +293,35 @@ pub fn apply_overrides(
         e.min_start_speed_rpm = check_range("min_start_speed_rpm", v, 10.0, 600.0, "10–600 rpm")?;
     }
     if let Some(v) = overrides.measured_compression_gauge_pa {
-        let gauge_pa =
-            check_range("measured_compression_pa", v, 300_000.0, 8_000_000.0, "0.3–8 MPa gauge")?;
+        let gauge_pa = check_range(
+            "measured_compression_pa",
+            v,
+            300_000.0,
+            8_000_000.0,
+            "0.3–8 MPa gauge",
+        )?;
         e.measured_compression_abs_pa = Some(gauge_pa + crate::constants::STANDARD_ATMOSPHERE_PA);
     }
     if let Some(v) = overrides.starter_power_w {
         e.starter_power_w = check_range("starter_power_w", v, 300.0, 20_000.0, "0.3–20 kW")?;
     }
     if let Some(v) = overrides.heat_capacity_j_per_k {
-        e.heat_capacity_j_per_k =
-            check_range("heat_capacity_j_per_k", v, 5_000.0, 5_000_000.0, "5 kJ/K – 5 MJ/K")?;
+        e.heat_capacity_j_per_k = check_range(
+            "heat_capacity_j_per_k",
+            v,
+            5_000.0,
+            5_000_000.0,
+            "5 kJ/K – 5 MJ/K",
+        )?;
     }
     if let Some(v) = overrides.cooldown_time_constant_s {
-        e.cooldown_time_constant_s =
-            Some(check_range("cooldown_time_constant_s", v, 600.0, 172_800.0, "10 min – 48 h")?);
+        e.cooldown_time_constant_s = Some(check_range(
+            "cooldown_time_constant_s",
+            v,
+            600.0,
+            172_800.0,
+            "10 min – 48 h",
+        )?);
     }
     if overrides.bore_m.is_some() || overrides.stroke_m.is_some() || overrides.cylinders.is_some() {
         // Keep the leak area proportional to the ring circumference and the mass to displacement.
@@ -302,16 +350,27 @@ mod tests {
     fn every_archetype_is_valid_and_ids_are_unique() {
         for (i, a) in ARCHETYPES.iter().enumerate() {
             a.engine.geometry.validate().unwrap();
-            assert!(ARCHETYPES[i + 1..].iter().all(|b| b.id != a.id), "duplicate id {}", a.id);
+            assert!(
+                ARCHETYPES[i + 1..].iter().all(|b| b.id != a.id),
+                "duplicate id {}",
+                a.id
+            );
             // Brand-free ids of our own: lowercase words and digits only.
-            assert!(a.id.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '-'));
+            assert!(
+                a.id.chars()
+                    .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '-')
+            );
         }
     }
 
     #[test]
     fn displacement_matches_class() {
         // Class sizes named in the descriptions (litres), within 10 %.
-        for (id, litres) in [("compact-di-i4", 2.0), ("light-di-v8", 6.6), ("heavy-di-i6", 12.9)] {
+        for (id, litres) in [
+            ("compact-di-i4", 2.0),
+            ("light-di-v8", 6.6),
+            ("heavy-di-i6", 12.9),
+        ] {
             let d = find(id).unwrap().engine.geometry.displacement_m3() * 1000.0;
             assert!((d - litres).abs() / litres < 0.1, "{id}: {d} L");
         }
@@ -320,11 +379,26 @@ mod tests {
     #[test]
     fn overrides_apply_and_are_validated() {
         let base = find("heavy-di-i6").unwrap().engine;
-        let o = EngineOverrides { compression_ratio: Some(18.0), ..Default::default() };
-        assert_eq!(apply_overrides(&base, &o).unwrap().geometry.compression_ratio, 18.0);
-        let bad = EngineOverrides { compression_ratio: Some(f64::NAN), ..Default::default() };
+        let o = EngineOverrides {
+            compression_ratio: Some(18.0),
+            ..Default::default()
+        };
+        assert_eq!(
+            apply_overrides(&base, &o)
+                .unwrap()
+                .geometry
+                .compression_ratio,
+            18.0
+        );
+        let bad = EngineOverrides {
+            compression_ratio: Some(f64::NAN),
+            ..Default::default()
+        };
         assert!(apply_overrides(&base, &bad).is_err());
-        let bad = EngineOverrides { starter_power_w: Some(-1.0), ..Default::default() };
+        let bad = EngineOverrides {
+            starter_power_w: Some(-1.0),
+            ..Default::default()
+        };
         assert!(apply_overrides(&base, &bad).is_err());
     }
 }

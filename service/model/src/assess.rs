@@ -14,10 +14,10 @@
 //! Deterministic: the same input always gives the same output, bit for bit.
 
 pub mod actions;
-pub mod outlook;
 pub mod calibration;
-pub mod uncertainty;
+pub mod outlook;
 pub mod unassisted;
+pub mod uncertainty;
 
 use crate::aids;
 use crate::air;
@@ -109,7 +109,11 @@ pub struct ForecastSeries {
 impl ForecastSeries {
     /// Borrowed view for the soak model.
     pub fn view(&self) -> Forecast<'_> {
-        Forecast { start_s: self.start_s, step_s: self.step_s, hours: &self.hours }
+        Forecast {
+            start_s: self.start_s,
+            step_s: self.step_s,
+            hours: &self.hours,
+        }
     }
 }
 
@@ -325,7 +329,10 @@ fn build_nodes(night: &VehicleNight, fuel_level: f64) -> Nodes {
             soak::fuel_tank_node(night.fuel.tank_capacity_l, fuel_level),
             night.sheltered,
         ),
-        filter: sheltered(soak::fuel_filter_node(night.fuel.filter_mount), night.sheltered),
+        filter: sheltered(
+            soak::fuel_filter_node(night.fuel.filter_mount),
+            night.sheltered,
+        ),
     }
 }
 
@@ -343,7 +350,9 @@ fn start_state(night: &VehicleNight) -> Result<StartState, ModelError> {
         ));
     }
     if at_s > night.departure_s {
-        return Err(ModelError::Inconsistent("telemetry is later than the departure"));
+        return Err(ModelError::Inconsistent(
+            "telemetry is later than the departure",
+        ));
     }
     let hour = forecast_step(&f, at_s)?;
     let air_t_k = t.ambient_t_k.unwrap_or(hour.air_t_k);
@@ -355,14 +364,23 @@ fn start_state(night: &VehicleNight) -> Result<StartState, ModelError> {
         FilterMount::EngineBay => 0.5 * (engine_t_k + tank_t_k),
         FilterMount::Frame => tank_t_k,
     };
-    Ok(StartState { at_s, air_t_k, engine_t_k, battery_t_k, tank_t_k, filter_t_k })
+    Ok(StartState {
+        at_s,
+        air_t_k,
+        engine_t_k,
+        battery_t_k,
+        tank_t_k,
+        filter_t_k,
+    })
 }
 
 /// The forecast step holding at `at_s`; the end of the forecast belongs to its last step (a
 /// departure exactly at the end is covered).
 fn forecast_step<'a>(f: &'a Forecast<'_>, at_s: f64) -> Result<&'a ForecastHour, ModelError> {
-    let too_short =
-        ModelError::ForecastTooShort { covered_until_s: f.covered_until_s(), requested_s: at_s };
+    let too_short = ModelError::ForecastTooShort {
+        covered_until_s: f.covered_until_s(),
+        requested_s: at_s,
+    };
     match f.at(at_s) {
         Some(h) => Ok(h),
         None if at_s == f.covered_until_s() => f.hours.last().ok_or(too_short),
@@ -392,8 +410,20 @@ fn validate(night: &VehicleNight) -> Result<(), ModelError> {
             reason: "at most 168 steps",
         });
     }
-    check_range("barometric_pa", night.forecast.barometric_pa, 50_000.0, 110_000.0, "50–110 kPa")?;
-    check_range("departure_s", night.departure_s, -1e12, 1e12, "a finite time")?;
+    check_range(
+        "barometric_pa",
+        night.forecast.barometric_pa,
+        50_000.0,
+        110_000.0,
+        "50–110 kPa",
+    )?;
+    check_range(
+        "departure_s",
+        night.departure_s,
+        -1e12,
+        1e12,
+        "a finite time",
+    )?;
     if night.departure_s > f.covered_until_s() || night.departure_s < f.start_s {
         return Err(ModelError::ForecastTooShort {
             covered_until_s: f.covered_until_s(),
@@ -401,24 +431,92 @@ fn validate(night: &VehicleNight) -> Result<(), ModelError> {
         });
     }
     if let Some((from_s, until_s)) = night.block_heater_plan {
-        check_range("block_heater_on_from_s", from_s, -1e12, 1e12, "a finite time")?;
-        check_range("block_heater_on_until_s", until_s, -1e12, 1e12, "a finite time")?;
+        check_range(
+            "block_heater_on_from_s",
+            from_s,
+            -1e12,
+            1e12,
+            "a finite time",
+        )?;
+        check_range(
+            "block_heater_on_until_s",
+            until_s,
+            -1e12,
+            1e12,
+            "a finite time",
+        )?;
         if until_s < from_s {
-            return Err(ModelError::Inconsistent("block heater switched off before it is switched on"));
+            return Err(ModelError::Inconsistent(
+                "block heater switched off before it is switched on",
+            ));
         }
     }
-    check_range("tank_capacity_l", night.fuel.tank_capacity_l, 5.0, 3_000.0, "5–3000 L")?;
-    check_range("ignition_window_deg", night.engine.ignition_window_deg, 5.0, 90.0, "5–90 °CA")?;
-    check_range("glow_preheat_s", night.aids.glow_preheat_s, 0.0, 600.0, "0–600 s")?;
-    check_range("intake_heater_w", night.aids.intake_heater_w, 0.0, 20_000.0, "0–20 kW")?;
-    check_range("block_heater_w", night.aids.block_heater_w, 0.0, 5_000.0, "0–5 kW")?;
-    check_range("battery_health_fraction", night.battery.health_fraction, 0.05, 1.0, "5–100 %")?;
-    check_range("min_start_speed_rpm", night.engine.min_start_speed_rpm, 10.0, 600.0, "10–600 rpm")?;
+    check_range(
+        "tank_capacity_l",
+        night.fuel.tank_capacity_l,
+        5.0,
+        3_000.0,
+        "5–3000 L",
+    )?;
+    check_range(
+        "ignition_window_deg",
+        night.engine.ignition_window_deg,
+        5.0,
+        90.0,
+        "5–90 °CA",
+    )?;
+    check_range(
+        "glow_preheat_s",
+        night.aids.glow_preheat_s,
+        0.0,
+        600.0,
+        "0–600 s",
+    )?;
+    check_range(
+        "intake_heater_w",
+        night.aids.intake_heater_w,
+        0.0,
+        20_000.0,
+        "0–20 kW",
+    )?;
+    check_range(
+        "block_heater_w",
+        night.aids.block_heater_w,
+        0.0,
+        5_000.0,
+        "0–5 kW",
+    )?;
+    check_range(
+        "battery_health_fraction",
+        night.battery.health_fraction,
+        0.05,
+        1.0,
+        "5–100 %",
+    )?;
+    check_range(
+        "min_start_speed_rpm",
+        night.engine.min_start_speed_rpm,
+        10.0,
+        600.0,
+        "10–600 rpm",
+    )?;
     if let Some(tau_s) = night.engine.cooldown_time_constant_s {
-        check_range("cooldown_time_constant_s", tau_s, 600.0, 172_800.0, "10 min – 48 h")?;
+        check_range(
+            "cooldown_time_constant_s",
+            tau_s,
+            600.0,
+            172_800.0,
+            "10 min – 48 h",
+        )?;
     }
     if let Some(p) = night.engine.measured_compression_abs_pa {
-        check_range("measured_compression_abs_pa", p, 400_000.0, 8_200_000.0, "0.4–8.2 MPa absolute")?;
+        check_range(
+            "measured_compression_abs_pa",
+            p,
+            400_000.0,
+            8_200_000.0,
+            "0.4–8.2 MPa absolute",
+        )?;
     }
     for s in &night.forecast.air_spread_k {
         check_range("air_spread_k", *s, 0.0, 30.0, "0–30 K")?;
@@ -426,10 +524,17 @@ fn validate(night: &VehicleNight) -> Result<(), ModelError> {
     if !night.forecast.air_spread_k.is_empty()
         && night.forecast.air_spread_k.len() != night.forecast.hours.len()
     {
-        return Err(ModelError::Inconsistent("give an air spread for every forecast step or for none"));
+        return Err(ModelError::Inconsistent(
+            "give an air spread for every forecast step or for none",
+        ));
     }
     let t = &night.telemetry;
-    for (name, v) in [("coolant_t_k", t.coolant_t_k), ("oil_t_k", t.oil_t_k), ("fuel_t_k", t.fuel_t_k), ("ambient_t_k", t.ambient_t_k)] {
+    for (name, v) in [
+        ("coolant_t_k", t.coolant_t_k),
+        ("oil_t_k", t.oil_t_k),
+        ("fuel_t_k", t.fuel_t_k),
+        ("ambient_t_k", t.ambient_t_k),
+    ] {
         if let Some(v) = v {
             check_range(name, v, 183.15, 423.15, "−90 to +150 °C")?;
         }
@@ -456,7 +561,14 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
     let heater = heater_schedule(night);
     let soc = state_of_charge(night)?;
 
-    let point = start_point(night, &nodes, &start, heater.as_ref(), soc, night.departure_s)?;
+    let point = start_point(
+        night,
+        &nodes,
+        &start,
+        heater.as_ref(),
+        soc,
+        night.departure_s,
+    )?;
 
     // Fuel path, hourly from the start of the night, then the departure itself.
     let cold_flow = fuel::cold_flow_properties(&night.fuel.description)?;
@@ -510,7 +622,10 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
 }
 
 fn state_of_charge(night: &VehicleNight) -> Result<f64, ModelError> {
-    match (night.telemetry.battery_rest_v, night.battery.state_of_charge) {
+    match (
+        night.telemetry.battery_rest_v,
+        night.battery.state_of_charge,
+    ) {
         (Some(v), _) => battery::state_of_charge_from_rest_v(v, night.battery.nominal_v),
         (None, Some(soc)) => check_range("state_of_charge", soc, 0.0, 1.0, "0–100 %"),
         (None, None) => Ok(DEFAULT_STATE_OF_CHARGE),
@@ -544,7 +659,13 @@ fn start_point(
     let hour = forecast_step(&f, at_s)?;
     // Between the telemetry's own ambient and the forecast, the forecast holds at departure.
     let air_t_k = hour.air_t_k;
-    let soaked = SoakedState { engine_t_k, battery_t_k, fuel_tank_t_k, fuel_filter_t_k, air_t_k };
+    let soaked = SoakedState {
+        engine_t_k,
+        battery_t_k,
+        fuel_tank_t_k,
+        fuel_filter_t_k,
+        air_t_k,
+    };
     let _ = start.air_t_k;
 
     let engine = &night.engine;
@@ -560,7 +681,8 @@ fn start_point(
             rated_power_w: engine.starter_power_w,
             nominal_v: night.battery.nominal_v,
             gear_ratio: engine.starter_gear_ratio,
-            cable_resistance_ohm: cranking::DEFAULT_CABLE_RESISTANCE_OHM * night.battery.nominal_v / 12.0,
+            cable_resistance_ohm: cranking::DEFAULT_CABLE_RESISTANCE_OHM * night.battery.nominal_v
+                / 12.0,
         },
         displacement_m3: engine.geometry.displacement_m3(),
         cylinders: engine.geometry.cylinders,
@@ -579,7 +701,11 @@ fn start_point(
     let crank_rpm = result.crank_rpm.max(engine.min_start_speed_rpm);
     let cetane = fuel::cetane_number(&night.fuel.description)?;
     let budget = heat_budget(night, air_t_k, engine_t_k, fuel_tank_t_k, crank_rpm, cetane)?;
-    Ok(StartPoint { budget, cranking, soaked })
+    Ok(StartPoint {
+        budget,
+        cranking,
+        soaked,
+    })
 }
 
 /// Igniting-charge temperature: the blend of adiabatic core and mass average that the combustion
@@ -641,11 +767,20 @@ fn heat_budget(
         leak_area_m2: 0.0,
         crankcase_p_pa: intake_p_pa,
     };
-    let (ideal_end_t_k, _) =
-        air::isentropic_compression(air_t_k, intake_p_pa, engine.geometry.effective_compression_ratio())?;
-    let with_walls = CompressionInput { heat_transfer_multiplier: wall_multiplier(engine.combustion), ..base };
+    let (ideal_end_t_k, _) = air::isentropic_compression(
+        air_t_k,
+        intake_p_pa,
+        engine.geometry.effective_compression_ratio(),
+    )?;
+    let with_walls = CompressionInput {
+        heat_transfer_multiplier: wall_multiplier(engine.combustion),
+        ..base
+    };
     let walls = compression::compress(&with_walls)?;
-    let with_leak = CompressionInput { leak_area_m2, ..with_walls };
+    let with_leak = CompressionInput {
+        leak_area_m2,
+        ..with_walls
+    };
     let full = compression::compress(&with_leak)?;
     let walls_t_k = charge_t_k(&walls, engine.combustion);
     let full_t_k = charge_t_k(&full, engine.combustion);
@@ -675,7 +810,10 @@ fn heat_budget(
             flow_kg_s,
             air::cp_j_per_kg_k(air_t_k),
         )?;
-        let heated = compression::compress(&CompressionInput { intake_t_k: air_t_k + rise_k, ..with_leak })?;
+        let heated = compression::compress(&CompressionInput {
+            intake_t_k: air_t_k + rise_k,
+            ..with_leak
+        })?;
         let heated_t_k = charge_t_k(&heated, engine.combustion);
         let heated_evap_k = evaporation::evaporation_cooling_k(
             calibration::CRANKING_AIR_FUEL_RATIO,
@@ -683,7 +821,10 @@ fn heat_budget(
             heated_t_k,
             air::cv_j_per_kg_k(heated_t_k),
         )?;
-        ((heated_t_k - heated_evap_k) - (full_t_k - evaporation_loss_k), heated)
+        (
+            (heated_t_k - heated_evap_k) - (full_t_k - evaporation_loss_k),
+            heated,
+        )
     } else {
         (0.0, full)
     };
@@ -744,8 +885,14 @@ fn fuel_path(
         // Exact piecewise solution: chaining from the previous sample equals solving from the start.
         let tank_t_k =
             soak::node_temperature_k(&nodes.tank, sample.tank_t_k, sample.at_s, &f, None, next_s)?;
-        let filter_t_k =
-            soak::node_temperature_k(&nodes.filter, sample.filter_t_k, sample.at_s, &f, None, next_s)?;
+        let filter_t_k = soak::node_temperature_k(
+            &nodes.filter,
+            sample.filter_t_k,
+            sample.at_s,
+            &f,
+            None,
+            next_s,
+        )?;
         sample = FuelTemperatureSample {
             at_s: next_s,
             tank_t_k,
@@ -779,7 +926,10 @@ fn margin_path(
         }
         let at_s = at_s.min(f.covered_until_s());
         let p = start_point(night, nodes, start, heater, soc, at_s)?;
-        out.push(MarginPoint { at_s, margin_k: p.budget.margin_k() });
+        out.push(MarginPoint {
+            at_s,
+            margin_k: p.budget.margin_k(),
+        });
     }
     Ok(out)
 }

@@ -41,6 +41,10 @@ pub fn check_range(
     if value.is_finite() && value >= min && value <= max {
         Ok(value)
     } else {
-        Err(ModelError::OutOfRange { quantity, value, reason })
+        Err(ModelError::OutOfRange {
+            quantity,
+            value,
+            reason,
+        })
     }
 }

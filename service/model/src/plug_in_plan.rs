@@ -10,6 +10,7 @@
 //!   carry every chosen heater at once — conservative): dynamic programming over (outlets used,
 //!   power in 50 W units) is exact; beyond [`EXACT_STATE_LIMIT`] states a ratio-greedy heuristic
 //!   runs and the gap to the fractional-relaxation upper bound is reported.
+//!
 //! One outlet serves one vehicle per night (outlet sharing on timers is not modelled).
 
 /// One vehicle that could be plugged in.
@@ -70,11 +71,22 @@ pub struct PlugInPlan {
 pub const EXACT_STATE_LIMIT: usize = 20_000_000;
 const POWER_UNIT_W: f64 = 50.0;
 
-fn finish(c: &[PlugInCandidate], mut chosen: Vec<usize>, method: PlanMethod, gap_bound: f64) -> PlugInPlan {
+fn finish(
+    c: &[PlugInCandidate],
+    mut chosen: Vec<usize>,
+    method: PlanMethod,
+    gap_bound: f64,
+) -> PlugInPlan {
     chosen.sort_unstable();
     let without: f64 = c.iter().map(|x| x.p_without).sum();
     let gain: f64 = chosen.iter().map(|&i| c[i].benefit()).sum();
-    PlugInPlan { chosen, expected_no_starts_without: without, expected_no_starts_with: without - gain, method, gap_bound }
+    PlugInPlan {
+        chosen,
+        expected_no_starts_without: without,
+        expected_no_starts_with: without - gain,
+        method,
+        gap_bound,
+    }
 }
 
 /// Chooses the vehicles to plug in.
@@ -90,7 +102,9 @@ pub fn plan(c: &[PlugInCandidate], limits: &DepotLimits) -> PlugInPlan {
         }
         Some(limit_w) => {
             let cap = (limit_w.max(0.0) / POWER_UNIT_W).floor() as usize;
-            if (n_out + 1) * (cap + 1) <= EXACT_STATE_LIMIT && useful.len() * (n_out + 1) * (cap + 1) <= 40 * EXACT_STATE_LIMIT {
+            if (n_out + 1) * (cap + 1) <= EXACT_STATE_LIMIT
+                && useful.len() * (n_out + 1) * (cap + 1) <= 40 * EXACT_STATE_LIMIT
+            {
                 finish(c, knapsack(c, &useful, n_out, cap), PlanMethod::Exact, 0.0)
             } else {
                 let (chosen, bound) = greedy(c, &useful, n_out, limit_w);
@@ -140,7 +154,8 @@ fn greedy(c: &[PlugInCandidate], items: &[usize], n_out: usize, limit_w: f64) ->
     let mut order = items.to_vec();
     let ratio = |i: usize| c[i].benefit() / c[i].heater_w.max(1.0);
     order.sort_by(|&a, &b| ratio(b).total_cmp(&ratio(a)).then(a.cmp(&b)));
-    let (mut used_w, mut chosen, mut bound, mut bound_w, mut bound_n) = (0.0, Vec::new(), 0.0, 0.0, 0usize);
+    let (mut used_w, mut chosen, mut bound, mut bound_w, mut bound_n) =
+        (0.0, Vec::new(), 0.0, 0.0, 0usize);
     for &i in &order {
         if chosen.len() < n_out && used_w + c[i].heater_w <= limit_w {
             used_w += c[i].heater_w;
@@ -164,13 +179,20 @@ fn greedy(c: &[PlugInCandidate], items: &[usize], n_out: usize, limit_w: f64) ->
 /// the lowest margins until outlets or power run out.
 pub fn coldest_first(c: &[PlugInCandidate], limits: &DepotLimits) -> PlugInPlan {
     let mut order: Vec<usize> = (0..c.len()).collect();
-    order.sort_by(|&a, &b| c[a].margin_without_k.total_cmp(&c[b].margin_without_k).then(a.cmp(&b)));
+    order.sort_by(|&a, &b| {
+        c[a].margin_without_k
+            .total_cmp(&c[b].margin_without_k)
+            .then(a.cmp(&b))
+    });
     let (mut used_w, mut chosen) = (0.0, Vec::new());
     for i in order {
         if chosen.len() >= limits.outlets as usize {
             break;
         }
-        if limits.circuit_limit_w.is_none_or(|l| used_w + c[i].heater_w <= l) {
+        if limits
+            .circuit_limit_w
+            .is_none_or(|l| used_w + c[i].heater_w <= l)
+        {
             used_w += c[i].heater_w;
             chosen.push(i);
         }
@@ -186,7 +208,9 @@ mod tests {
     fn depot(n: usize, key: u64) -> Vec<PlugInCandidate> {
         let mut s = key;
         let mut next = || {
-            s = s.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
+            s = s
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
             (s >> 11) as f64 / (1u64 << 53) as f64
         };
         (0..n)
@@ -210,7 +234,10 @@ mod tests {
             if idx.len() > l.outlets as usize {
                 continue;
             }
-            let w: f64 = idx.iter().map(|&i| (c[i].heater_w / POWER_UNIT_W).ceil() * POWER_UNIT_W).sum();
+            let w: f64 = idx
+                .iter()
+                .map(|&i| (c[i].heater_w / POWER_UNIT_W).ceil() * POWER_UNIT_W)
+                .sum();
             if l.circuit_limit_w.is_some_and(|lim| w > lim) {
                 continue;
             }
@@ -224,13 +251,25 @@ mod tests {
         for key in 0..40 {
             let c = depot(3 + (key as usize % 10), key);
             for limits in [
-                DepotLimits { outlets: 3, circuit_limit_w: None },
-                DepotLimits { outlets: 4, circuit_limit_w: Some(2_500.0) },
-                DepotLimits { outlets: 12, circuit_limit_w: Some(4_000.0) },
+                DepotLimits {
+                    outlets: 3,
+                    circuit_limit_w: None,
+                },
+                DepotLimits {
+                    outlets: 4,
+                    circuit_limit_w: Some(2_500.0),
+                },
+                DepotLimits {
+                    outlets: 12,
+                    circuit_limit_w: Some(4_000.0),
+                },
             ] {
                 let p = plan(&c, &limits);
                 let got = p.expected_no_starts_without - p.expected_no_starts_with;
-                assert!((got - exhaustive(&c, &limits)).abs() < 1e-9, "key {key} {limits:?}");
+                assert!(
+                    (got - exhaustive(&c, &limits)).abs() < 1e-9,
+                    "key {key} {limits:?}"
+                );
                 assert_eq!(p.method, PlanMethod::Exact);
             }
         }
@@ -241,7 +280,13 @@ mod tests {
         let c = depot(12, 7);
         let mut last = f64::INFINITY;
         for outlets in 0..=12 {
-            let p = plan(&c, &DepotLimits { outlets, circuit_limit_w: Some(6_000.0) });
+            let p = plan(
+                &c,
+                &DepotLimits {
+                    outlets,
+                    circuit_limit_w: Some(6_000.0),
+                },
+            );
             assert!(p.expected_no_starts_with <= last + 1e-12);
             last = p.expected_no_starts_with;
         }
@@ -251,19 +296,31 @@ mod tests {
     fn plan_never_worse_than_coldest_first() {
         for key in 0..20 {
             let c = depot(12, key);
-            let l = DepotLimits { outlets: 4, circuit_limit_w: Some(3_000.0) };
-            assert!(plan(&c, &l).expected_no_starts_with <= coldest_first(&c, &l).expected_no_starts_with + 1e-12);
+            let l = DepotLimits {
+                outlets: 4,
+                circuit_limit_w: Some(3_000.0),
+            };
+            assert!(
+                plan(&c, &l).expected_no_starts_with
+                    <= coldest_first(&c, &l).expected_no_starts_with + 1e-12
+            );
         }
     }
 
     #[test]
     fn heuristic_gap_bound_holds() {
         let c = depot(12, 3);
-        let l = DepotLimits { outlets: 5, circuit_limit_w: Some(3_000.0) };
+        let l = DepotLimits {
+            outlets: 5,
+            circuit_limit_w: Some(3_000.0),
+        };
         let items: Vec<usize> = (0..c.len()).collect();
         let (chosen, bound) = greedy(&c, &items, 5, 3_000.0);
         let got: f64 = chosen.iter().map(|&i| c[i].benefit()).sum();
         let opt = exhaustive(&c, &l);
-        assert!(got <= opt + 1e-12 && opt <= bound + 1e-9, "got {got} opt {opt} bound {bound}");
+        assert!(
+            got <= opt + 1e-12 && opt <= bound + 1e-9,
+            "got {got} opt {opt} bound {bound}"
+        );
     }
 }

@@ -4,9 +4,9 @@
 use std::sync::OnceLock;
 
 use startmargin_model::archetypes::{ARCHETYPES, Archetype, CombustionSystem};
+use startmargin_model::assess::outlook::{OutlookThresholds, StartOutlook};
 use startmargin_model::assess::{self, calibration, unassisted, uncertainty};
 use startmargin_model::constants::kelvin_to_celsius;
-use startmargin_model::assess::outlook::{OutlookThresholds, StartOutlook};
 use startmargin_model::fuel;
 use startmargin_proto::v1 as pb;
 
@@ -106,18 +106,62 @@ fn parameters() -> Vec<pb::ModelParameter> {
     let di = CombustionSystem::DirectInjection;
     let divided = CombustionSystem::Prechamber;
     vec![
-        p("di_wall_multiplier", calibration::DI_WALL_MULTIPLIER, "published correlation as it stands (not fitted)"),
-        p("swirl_chamber_wall_multiplier", calibration::SWIRL_WALL_MULTIPLIER, "calibrated on the 20 °C swirl-chamber no-aid limit"),
-        p("prechamber_wall_multiplier", calibration::PRECHAMBER_WALL_MULTIPLIER, "calibrated on the 40 °C prechamber no-aid limit"),
-        p("di_core_weight", calibration::core_weight(di), "modelling principle: the adiabatic core ignites"),
-        p("divided_chamber_core_weight", calibration::core_weight(divided), "modelling principle: the mass-averaged charge ignites"),
-        p("leak_area_m2_per_m_bore", calibration::DEFAULT_LEAK_AREA_M2_PER_M_BORE, "estimate, checked against workshop compression pressures"),
-        p("cranking_air_fuel_ratio", calibration::CRANKING_AIR_FUEL_RATIO, "estimate"),
-        p("default_state_of_charge", assess::DEFAULT_STATE_OF_CHARGE, "estimate"),
+        p(
+            "di_wall_multiplier",
+            calibration::DI_WALL_MULTIPLIER,
+            "published correlation as it stands (not fitted)",
+        ),
+        p(
+            "swirl_chamber_wall_multiplier",
+            calibration::SWIRL_WALL_MULTIPLIER,
+            "calibrated on the 20 °C swirl-chamber no-aid limit",
+        ),
+        p(
+            "prechamber_wall_multiplier",
+            calibration::PRECHAMBER_WALL_MULTIPLIER,
+            "calibrated on the 40 °C prechamber no-aid limit",
+        ),
+        p(
+            "di_core_weight",
+            calibration::core_weight(di),
+            "modelling principle: the adiabatic core ignites",
+        ),
+        p(
+            "divided_chamber_core_weight",
+            calibration::core_weight(divided),
+            "modelling principle: the mass-averaged charge ignites",
+        ),
+        p(
+            "leak_area_m2_per_m_bore",
+            calibration::DEFAULT_LEAK_AREA_M2_PER_M_BORE,
+            "estimate, checked against workshop compression pressures",
+        ),
+        p(
+            "cranking_air_fuel_ratio",
+            calibration::CRANKING_AIR_FUEL_RATIO,
+            "estimate",
+        ),
+        p(
+            "default_state_of_charge",
+            assess::DEFAULT_STATE_OF_CHARGE,
+            "estimate",
+        ),
         p("comfort_margin_k", assess::COMFORT_MARGIN_K, "estimate"),
-        p("model_margin_sigma_k", uncertainty::MODEL_MARGIN_SIGMA_K, "estimate"),
-        p("forecast_sigma_at_zero_lead_k", uncertainty::FORECAST_SIGMA_AT_ZERO_LEAD_K, "estimate"),
-        p("forecast_sigma_growth_k_per_h", uncertainty::FORECAST_SIGMA_GROWTH_K_PER_H, "estimate"),
+        p(
+            "model_margin_sigma_k",
+            uncertainty::MODEL_MARGIN_SIGMA_K,
+            "estimate",
+        ),
+        p(
+            "forecast_sigma_at_zero_lead_k",
+            uncertainty::FORECAST_SIGMA_AT_ZERO_LEAD_K,
+            "estimate",
+        ),
+        p(
+            "forecast_sigma_growth_k_per_h",
+            uncertainty::FORECAST_SIGMA_GROWTH_K_PER_H,
+            "estimate",
+        ),
     ]
 }
 
@@ -143,9 +187,21 @@ pub fn thresholds(t: &OutlookThresholds) -> Vec<pb::OutlookThreshold> {
     let level = |o| super::outlook_to_pb(o) as i32;
     let gel = |g| super::grades::gel_level_to_pb(g) as i32;
     vec![
-        pb::OutlookThreshold { outlook: level(StartOutlook::Watch), from_no_start_pct: t.watch_from * 100.0, from_gel_level: gel(t.gel_watch) },
-        pb::OutlookThreshold { outlook: level(StartOutlook::AtRisk), from_no_start_pct: t.at_risk_from * 100.0, from_gel_level: gel(t.gel_at_risk) },
-        pb::OutlookThreshold { outlook: level(StartOutlook::NoStartExpected), from_no_start_pct: t.no_start_from * 100.0, from_gel_level: gel(t.gel_no_start) },
+        pb::OutlookThreshold {
+            outlook: level(StartOutlook::Watch),
+            from_no_start_pct: t.watch_from * 100.0,
+            from_gel_level: gel(t.gel_watch),
+        },
+        pb::OutlookThreshold {
+            outlook: level(StartOutlook::AtRisk),
+            from_no_start_pct: t.at_risk_from * 100.0,
+            from_gel_level: gel(t.gel_at_risk),
+        },
+        pb::OutlookThreshold {
+            outlook: level(StartOutlook::NoStartExpected),
+            from_no_start_pct: t.no_start_from * 100.0,
+            from_gel_level: gel(t.gel_no_start),
+        },
     ]
 }
 

@@ -84,7 +84,9 @@ pub struct ActionPolicy {
 
 impl Default for ActionPolicy {
     fn default() -> Self {
-        Self { target_probability: 0.05 }
+        Self {
+            target_probability: 0.05,
+        }
     }
 }
 
@@ -93,7 +95,11 @@ pub fn normal_quantile(p: f64) -> f64 {
     let (mut lo, mut hi) = (-10.0, 10.0);
     for _ in 0..60 {
         let mid = 0.5 * (lo + hi);
-        if normal_cdf(mid) < p { lo = mid } else { hi = mid }
+        if normal_cdf(mid) < p {
+            lo = mid
+        } else {
+            hi = mid
+        }
     }
     0.5 * (lo + hi)
 }
@@ -103,7 +109,10 @@ pub fn target_margin_k(policy: &ActionPolicy) -> f64 {
     MODEL_MARGIN_SIGMA_K * normal_quantile(1.0 - policy.target_probability)
 }
 
-fn margin_with(night: &VehicleNight, change: impl FnOnce(&mut VehicleNight)) -> Result<Assessment, ModelError> {
+fn margin_with(
+    night: &VehicleNight,
+    change: impl FnOnce(&mut VehicleNight),
+) -> Result<Assessment, ModelError> {
     let mut n = night.clone();
     n.options.include_margin_path = false;
     change(&mut n);
@@ -113,14 +122,23 @@ fn margin_with(night: &VehicleNight, change: impl FnOnce(&mut VehicleNight)) -> 
 /// Where the night starts on the model's time axis (telemetry time or forecast start).
 fn night_start_s(night: &VehicleNight) -> f64 {
     match night.telemetry.observed_at_s {
-        Some(t) if night.telemetry.coolant_t_k.is_some() || night.telemetry.oil_t_k.is_some() || night.telemetry.fuel_t_k.is_some() => t,
+        Some(t)
+            if night.telemetry.coolant_t_k.is_some()
+                || night.telemetry.oil_t_k.is_some()
+                || night.telemetry.fuel_t_k.is_some() =>
+        {
+            t
+        }
         _ => night.forecast.start_s,
     }
 }
 
 /// Block heater: latest plug-in time at which the vehicle still starts with `target_margin_k`, by
 /// bisection on the plug-in time (a later plug-in never raises the margin: tested).
-pub fn latest_plug_in_s(night: &VehicleNight, target_margin_k: f64) -> Result<Option<(f64, f64)>, ModelError> {
+pub fn latest_plug_in_s(
+    night: &VehicleNight,
+    target_margin_k: f64,
+) -> Result<Option<(f64, f64)>, ModelError> {
     if night.aids.block_heater_w <= 0.0 {
         return Ok(None);
     }
@@ -143,13 +161,22 @@ pub fn latest_plug_in_s(night: &VehicleNight, target_margin_k: f64) -> Result<Op
     // 16 halvings of a night of ~15 h resolve about 1 minute.
     for _ in 0..16 {
         let mid = 0.5 * (early + late);
-        if good(&plugged_at(mid)?) { early = mid } else { late = mid }
+        if good(&plugged_at(mid)?) {
+            early = mid
+        } else {
+            late = mid
+        }
     }
     Ok(Some((early, plugged_at(early)?.margin_k)))
 }
 
 /// Recommends actions for an assessed night, most useful first.
-pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, out: &mut Vec<Action>) -> Result<(), ModelError> {
+pub fn recommend(
+    night: &VehicleNight,
+    a: &Assessment,
+    policy: &ActionPolicy,
+    out: &mut Vec<Action>,
+) -> Result<(), ModelError> {
     let target_k = target_margin_k(policy);
     let base = a.margin_k;
     let needs_help = !a.start_expected || base < target_k.max(COMFORT_MARGIN_K);
@@ -168,9 +195,12 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
     }
     if needs_help {
         if let Some((plug_s, margin_k)) = latest_plug_in_s(night, target_k)? {
-            let planned = margin_with(night, |n| n.block_heater_plan = Some((plug_s, n.departure_s)))?;
+            let planned = margin_with(night, |n| {
+                n.block_heater_plan = Some((plug_s, n.departure_s))
+            })?;
             let energy_j = night.aids.block_heater_w * (night.departure_s - plug_s).max(0.0);
-            let all_night_j = night.aids.block_heater_w * (night.departure_s - night_start_s(night)).max(0.0);
+            let all_night_j =
+                night.aids.block_heater_w * (night.departure_s - night_start_s(night)).max(0.0);
             out.push(Action {
                 kind: ActionKind::PlugInBlockHeater,
                 summary: format!(
@@ -187,7 +217,10 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
         if let Some(g) = night.aids.glow_plugs {
             if !(g.relay_ok && g.plugs_ok) {
                 let fixed = margin_with(night, |n| {
-                    if let Some(p) = n.aids.glow_plugs.as_mut() { p.relay_ok = true; p.plugs_ok = true; }
+                    if let Some(p) = n.aids.glow_plugs.as_mut() {
+                        p.relay_ok = true;
+                        p.plugs_ok = true;
+                    }
                 })?;
                 out.push(Action {
                     kind: ActionKind::RepairGlowPlugs,
@@ -201,7 +234,8 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
             } else {
                 let full_s = 3.0 * g.preheat_time_constant_s;
                 if night.aids.glow_preheat_s < full_s {
-                    let gain = aids::glow_plug_gain_k(&g, full_s)? - aids::glow_plug_gain_k(&g, night.aids.glow_preheat_s)?;
+                    let gain = aids::glow_plug_gain_k(&g, full_s)?
+                        - aids::glow_plug_gain_k(&g, night.aids.glow_preheat_s)?;
                     if gain > 1.0 {
                         out.push(Action {
                             kind: ActionKind::ExtendPreheat,
@@ -216,8 +250,13 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
                 }
             }
         }
-        if !a.cranking.result.battery_frozen && (a.state_of_charge < 0.8 || a.limiting_factor == LimitingFactor::SlowCranking) {
-            let charged = margin_with(night, |n| { n.telemetry.battery_rest_v = None; n.battery.state_of_charge = Some(1.0); })?;
+        if !a.cranking.result.battery_frozen
+            && (a.state_of_charge < 0.8 || a.limiting_factor == LimitingFactor::SlowCranking)
+        {
+            let charged = margin_with(night, |n| {
+                n.telemetry.battery_rest_v = None;
+                n.battery.state_of_charge = Some(1.0);
+            })?;
             out.push(Action {
                 kind: ActionKind::ChargeBattery,
                 summary: if night.telemetry.battery_rest_v.is_some() || night.battery.state_of_charge.is_some() {
@@ -233,7 +272,10 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
             });
         }
         if night.oil.winter.is_none_or(|w| w >= 15) {
-            let lighter = SaeGrade { winter: Some(5), hot: if night.oil.hot >= 40 { 40 } else { 30 } };
+            let lighter = SaeGrade {
+                winter: Some(5),
+                hot: if night.oil.hot >= 40 { 40 } else { 30 },
+            };
             let with = margin_with(night, |n| n.oil = lighter)?;
             if with.cranking.result.crank_rpm > a.cranking.result.crank_rpm + 5.0 {
                 out.push(Action {
@@ -266,11 +308,19 @@ pub fn recommend(night: &VehicleNight, a: &Assessment, policy: &ActionPolicy, ou
         }
     }
     let mut fuel = Vec::new();
-    gel_risk::fuel_advice(&night.fuel.description, &a.cold_flow, &a.gel, None, &mut fuel)?;
+    gel_risk::fuel_advice(
+        &night.fuel.description,
+        &a.cold_flow,
+        &a.gel,
+        None,
+        &mut fuel,
+    )?;
     out.extend(fuel.iter().map(|f| fuel_action(f, a)));
     out.sort_by(|x, y| {
-        y.fixes_hard_failure.cmp(&x.fixes_hard_failure)
-            .then(y.expected_margin_gain_k.total_cmp(&x.expected_margin_gain_k))
+        y.fixes_hard_failure.cmp(&x.fixes_hard_failure).then(
+            y.expected_margin_gain_k
+                .total_cmp(&x.expected_margin_gain_k),
+        )
     });
     Ok(())
 }

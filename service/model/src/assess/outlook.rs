@@ -100,9 +100,18 @@ mod tests {
         assert_eq!(t.outlook(0.0, GelRiskLevel::Clear), StartOutlook::Assured);
         assert_eq!(t.outlook(0.05, GelRiskLevel::Clear), StartOutlook::Watch);
         assert_eq!(t.outlook(0.2, GelRiskLevel::Clear), StartOutlook::AtRisk);
-        assert_eq!(t.outlook(0.9, GelRiskLevel::Clear), StartOutlook::NoStartExpected);
-        assert_eq!(t.outlook(0.0, GelRiskLevel::NoFlow), StartOutlook::NoStartExpected);
-        assert_eq!(t.outlook(0.0, GelRiskLevel::FilterAtRisk), StartOutlook::AtRisk);
+        assert_eq!(
+            t.outlook(0.9, GelRiskLevel::Clear),
+            StartOutlook::NoStartExpected
+        );
+        assert_eq!(
+            t.outlook(0.0, GelRiskLevel::NoFlow),
+            StartOutlook::NoStartExpected
+        );
+        assert_eq!(
+            t.outlook(0.0, GelRiskLevel::FilterAtRisk),
+            StartOutlook::AtRisk
+        );
     }
 
     #[test]
@@ -118,9 +127,16 @@ mod tests {
 
     #[test]
     fn unordered_thresholds_are_rejected() {
-        let t = OutlookThresholds { watch_from: 0.5, at_risk_from: 0.1, ..Default::default() };
+        let t = OutlookThresholds {
+            watch_from: 0.5,
+            at_risk_from: 0.1,
+            ..Default::default()
+        };
         assert!(t.validate().is_err());
-        let t = OutlookThresholds { no_start_from: f64::NAN, ..Default::default() };
+        let t = OutlookThresholds {
+            no_start_from: f64::NAN,
+            ..Default::default()
+        };
         assert!(t.validate().is_err());
     }
 }

@@ -10,7 +10,7 @@ use super::{
 use crate::archetypes::{AidConfig, EngineConfig};
 use crate::constants::STANDARD_ATMOSPHERE_PA;
 use crate::error::ModelError;
-use crate::fuel::{FuelBase, FuelDescription, FuelGrade, BiodieselFeedstock};
+use crate::fuel::{BiodieselFeedstock, FuelBase, FuelDescription, FuelGrade};
 use crate::oil::SaeGrade;
 use crate::soak::{FilterMount, ForecastHour};
 
@@ -33,12 +33,27 @@ pub fn unassisted_margin_k(engine: &EngineConfig, air_t_k: f64) -> Result<f64, M
 
 /// The reference night of the no-aid limit at `air_t_k`.
 pub fn reference_night(engine: &EngineConfig, air_t_k: f64) -> VehicleNight {
-    let hours = vec![ForecastHour { air_t_k, wind_mps: 0.0, cloud_fraction: 1.0 }; 2];
+    let hours = vec![
+        ForecastHour {
+            air_t_k,
+            wind_mps: 0.0,
+            cloud_fraction: 1.0
+        };
+        2
+    ];
     VehicleNight {
         engine: *engine,
-        aids: AidConfig { glow_plugs: None, glow_preheat_s: 0.0, intake_heater_w: 0.0, block_heater_w: 0.0 },
+        aids: AidConfig {
+            glow_plugs: None,
+            glow_preheat_s: 0.0,
+            intake_heater_w: 0.0,
+            block_heater_w: 0.0,
+        },
         battery: reference_battery(engine),
-        oil: SaeGrade { winter: Some(5), hot: 30 },
+        oil: SaeGrade {
+            winter: Some(5),
+            hot: 30,
+        },
         fuel: FuelConfig {
             description: FuelDescription {
                 base: FuelBase::Grade(FuelGrade::UsNo1),
@@ -112,7 +127,10 @@ mod tests {
         // 0 °C. Nothing is fitted for DI (multiplier 1, adiabatic core), so this is a prediction.
         // Band ±5 K: the published figure is a round number for a class of engines.
         let t = limit_c("compact-di-i4");
-        assert!((-5.0..=5.0).contains(&t), "compact DI no-aid limit {t:.1} °C");
+        assert!(
+            (-5.0..=5.0).contains(&t),
+            "compact DI no-aid limit {t:.1} °C"
+        );
     }
 
     #[test]
@@ -121,7 +139,10 @@ mod tests {
         let pre = limit_c("older-idi-v8");
         let swirl = limit_c("swirl-idi-i4");
         assert!((38.0..=42.0).contains(&pre), "prechamber {pre:.1} °C");
-        assert!((18.0..=22.0).contains(&swirl), "swirl chamber {swirl:.1} °C");
+        assert!(
+            (18.0..=22.0).contains(&swirl),
+            "swirl chamber {swirl:.1} °C"
+        );
     }
 
     #[test]
@@ -130,7 +151,10 @@ mod tests {
         // roughly −10 to −20 °C with good batteries and suitable oil (estimate, no primary source).
         // Predicted, not fitted; band widened by 5 K either side for the estimate's looseness.
         let t = limit_c("heavy-di-i6");
-        assert!((-25.0..=-5.0).contains(&t), "heavy DI no-aid limit {t:.1} °C");
+        assert!(
+            (-25.0..=-5.0).contains(&t),
+            "heavy DI no-aid limit {t:.1} °C"
+        );
     }
 
     /// The 17.5:1 light-truck engine in service: 15W-40, a battery at 75 % charge and 80 % health.
@@ -138,7 +162,10 @@ mod tests {
         let a = find("light-di-v8").unwrap();
         assert_eq!(a.engine.geometry.compression_ratio, 17.5);
         let mut night = reference_night(&a.engine, celsius_to_kelvin(air_c));
-        night.oil = SaeGrade { winter: Some(15), hot: 40 };
+        night.oil = SaeGrade {
+            winter: Some(15),
+            hot: 40,
+        };
         night.battery = BatteryConfig {
             rated_cca_a: 750.0,
             nominal_v: 12.0,
@@ -155,13 +182,23 @@ mod tests {
         // little margin: at 10 °C the margin must be positive and below twice the comfort margin,
         // and the zero crossing must lie in 0–15 °C (the band allows for the truck's battery and oil).
         let at_10 = light_truck_margin_k(10.0);
-        assert!(at_10 > 0.0 && at_10 < 2.0 * crate::assess::COMFORT_MARGIN_K, "margin at 10 °C {at_10:.1} K");
+        assert!(
+            at_10 > 0.0 && at_10 < 2.0 * crate::assess::COMFORT_MARGIN_K,
+            "margin at 10 °C {at_10:.1} K"
+        );
         let (mut lo, mut hi) = (-10.0, 20.0);
         for _ in 0..30 {
             let mid = 0.5 * (lo + hi);
-            if light_truck_margin_k(mid) >= 0.0 { hi = mid } else { lo = mid }
+            if light_truck_margin_k(mid) >= 0.0 {
+                hi = mid
+            } else {
+                lo = mid
+            }
         }
-        assert!((0.0..=15.0).contains(&hi), "light-truck zero crossing {hi:.1} °C");
+        assert!(
+            (0.0..=15.0).contains(&hi),
+            "light-truck zero crossing {hi:.1} °C"
+        );
     }
 
     #[test]
@@ -183,7 +220,11 @@ mod tests {
             .unwrap();
             let gauge_mpa = (r.peak_p_pa - STANDARD_ATMOSPHERE_PA) / 1e6;
             // "About" 2.4–3.4 MPa: ±0.1 MPa for the looseness of a workshop range.
-            assert!((2.3..=3.5).contains(&gauge_mpa), "{}: {gauge_mpa:.2} MPa", a.id);
+            assert!(
+                (2.3..=3.5).contains(&gauge_mpa),
+                "{}: {gauge_mpa:.2} MPa",
+                a.id
+            );
         }
     }
 
@@ -206,6 +247,9 @@ mod tests {
         )
         .unwrap();
         let above_k = a.budget.predicted_end_t_k + a.budget.evaporation_loss_k - dodecane_k;
-        assert!((5.0..=80.0).contains(&above_k), "core above n-dodecane need: {above_k:.1} K");
+        assert!(
+            (5.0..=80.0).contains(&above_k),
+            "core above n-dodecane need: {above_k:.1} K"
+        );
     }
 }

@@ -93,8 +93,13 @@ fn soc_sigma(night: &VehicleNight) -> f64 {
 /// The uncertainties of a night.
 pub fn uncertainties(night: &VehicleNight) -> Uncertainties {
     let f = &night.forecast;
-    let step = ((night.departure_s - f.start_s) / f.step_s).floor().max(0.0) as usize;
-    let forecast_sigma_k = match f.air_spread_k.get(step.min(f.air_spread_k.len().saturating_sub(1))) {
+    let step = ((night.departure_s - f.start_s) / f.step_s)
+        .floor()
+        .max(0.0) as usize;
+    let forecast_sigma_k = match f
+        .air_spread_k
+        .get(step.min(f.air_spread_k.len().saturating_sub(1)))
+    {
         Some(s) if !f.air_spread_k.is_empty() => *s,
         _ => {
             let lead_h = ((night.departure_s - f.start_s) / 3600.0).max(0.0);
@@ -137,15 +142,17 @@ pub fn normal_cdf(x: f64) -> f64 {
 fn erfc(x: f64) -> f64 {
     let z = x.abs();
     let t = 1.0 / (1.0 + 0.5 * z);
-    let r = t * (-z * z - 1.265_512_23
-        + t * (1.000_023_68
-            + t * (0.374_091_96
-                + t * (0.096_784_18
-                    + t * (-0.186_288_06
-                        + t * (0.278_868_07
-                            + t * (-1.135_203_98
-                                + t * (1.488_515_87 + t * (-0.822_152_23 + t * 0.170_872_77)))))))))
-        .exp();
+    let r = t
+        * (-z * z - 1.265_512_23
+            + t * (1.000_023_68
+                + t * (0.374_091_96
+                    + t * (0.096_784_18
+                        + t * (-0.186_288_06
+                            + t * (0.278_868_07
+                                + t * (-1.135_203_98
+                                    + t * (1.488_515_87
+                                        + t * (-0.822_152_23 + t * 0.170_872_77)))))))))
+            .exp();
     if x >= 0.0 { r } else { 2.0 - r }
 }
 
@@ -160,7 +167,12 @@ struct Perturbation {
 
 const DIMENSIONS: usize = 4;
 
-fn perturbed(night: &VehicleNight, u: &Uncertainties, p: &Perturbation, soc0: f64) -> Result<VehicleNight, ModelError> {
+fn perturbed(
+    night: &VehicleNight,
+    u: &Uncertainties,
+    p: &Perturbation,
+    soc0: f64,
+) -> Result<VehicleNight, ModelError> {
     let mut n = night.clone();
     let dt = p.forecast * u.forecast_sigma_k;
     for h in &mut n.forecast.hours {
@@ -171,7 +183,8 @@ fn perturbed(night: &VehicleNight, u: &Uncertainties, p: &Perturbation, soc0: f6
     }
     n.telemetry.battery_rest_v = None;
     n.battery.state_of_charge = Some((soc0 + p.charge * u.state_of_charge_sigma).clamp(0.0, 1.0));
-    n.battery.health_fraction = (n.battery.health_fraction + p.health * u.health_sigma).clamp(0.05, 1.0);
+    n.battery.health_fraction =
+        (n.battery.health_fraction + p.health * u.health_sigma).clamp(0.05, 1.0);
     if p.fuel != 0.0 {
         let props = cold_flow_properties(&n.fuel.description)?;
         let d = p.fuel * u.fuel_sigma_k;
@@ -192,7 +205,9 @@ fn perturbed(night: &VehicleNight, u: &Uncertainties, p: &Perturbation, soc0: f6
 /// Soft no-start probability of one model run.
 fn run_probability(a: &Assessment) -> f64 {
     match a.limiting_factor {
-        LimitingFactor::FrozenBattery | LimitingFactor::WaxedFuel | LimitingFactor::SlowCranking
+        LimitingFactor::FrozenBattery
+        | LimitingFactor::WaxedFuel
+        | LimitingFactor::SlowCranking
             if !a.start_expected =>
         {
             1.0
@@ -225,7 +240,11 @@ fn axis(i: usize, s: f64) -> Perturbation {
     p
 }
 
-fn sigma_points(night: &VehicleNight, u: &Uncertainties, soc0: f64) -> Result<NoStartProbability, ModelError> {
+fn sigma_points(
+    night: &VehicleNight,
+    u: &Uncertainties,
+    soc0: f64,
+) -> Result<NoStartProbability, ModelError> {
     // Julier–Uhlmann: κ = 3 − d, points at ±√(d + κ) = ±√3 σ, weights κ/(d+κ) and 1/(2(d+κ)).
     let n = DIMENSIONS as f64;
     let kappa = 3.0 - n;
@@ -241,7 +260,12 @@ fn sigma_points(night: &VehicleNight, u: &Uncertainties, soc0: f64) -> Result<No
         let minus = assess(&perturbed(night, u, &axis(i, -spread), soc0)?)?;
         p += wi * (run_probability(&plus) + run_probability(&minus));
         mean += wi * (plus.margin_k + minus.margin_k);
-        *pair = (plus.margin_k, minus.margin_k, run_probability(&plus), run_probability(&minus));
+        *pair = (
+            plus.margin_k,
+            minus.margin_k,
+            run_probability(&plus),
+            run_probability(&minus),
+        );
     }
     let mut var = w0 * (centre.margin_k - mean).powi(2);
     let mut dominant = (UncertaintySource::Model, 0.0_f64);
@@ -253,7 +277,11 @@ fn sigma_points(night: &VehicleNight, u: &Uncertainties, soc0: f64) -> Result<No
             dominant = (source(i), swing);
         }
     }
-    let dominant = if dominant.1 > 1.0 / spread { dominant.0 } else { UncertaintySource::Model };
+    let dominant = if dominant.1 > 1.0 / spread {
+        dominant.0
+    } else {
+        UncertaintySource::Model
+    };
     Ok(NoStartProbability {
         probability: p.clamp(0.0, 1.0),
         margin_mean_k: mean,
@@ -304,7 +332,12 @@ fn sampling(
     let mut rng = SplitMix64(key);
     let (mut sum_p, mut sum_p2, mut sum_m, mut sum_m2) = (0.0, 0.0, 0.0, 0.0);
     for _ in 0..samples {
-        let p = Perturbation { forecast: rng.normal(), charge: rng.normal(), health: rng.normal(), fuel: rng.normal() };
+        let p = Perturbation {
+            forecast: rng.normal(),
+            charge: rng.normal(),
+            health: rng.normal(),
+            fuel: rng.normal(),
+        };
         let a = assess(&perturbed(night, u, &p, soc0)?)?;
         let q = run_probability(&a);
         sum_p += q;

@@ -1,0 +1,89 @@
+//! The watch's operator settings, taken from the configuration: stream bounds, update rate, alert
+//! lead, quiet hour and hysteresis, with the outlook thresholds they apply to.
+
+use startmargin_proto::v1 as pb;
+
+use crate::config::Config;
+use crate::convert::Policy;
+
+/// Settings of every WatchFleet stream of a server.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WatchSettings {
+    /// Most vehicles one stream may watch.
+    pub max_vehicles: usize,
+    /// Most updates per second one stream may send (faster input is read more slowly).
+    pub max_updates_per_s: f64,
+    /// An act-by alert goes out at the latest this long before the action's deadline, seconds.
+    pub alert_lead_s: i64,
+    /// Act-by alerts wait for this UTC hour of the departure's night unless the lead forces them.
+    pub quiet_until_hour: Option<u32>,
+    /// A raised outlook alert clears only below its level's threshold minus this, percent.
+    pub hysteresis_pct: f64,
+    /// Decision policy (outlook thresholds, action target).
+    pub policy: Policy,
+    /// Compute threads (how many parts a zone re-score is split into).
+    pub threads: usize,
+}
+
+impl WatchSettings {
+    /// The settings of a configuration.
+    pub fn from_config(config: &Config) -> Self {
+        Self {
+            max_vehicles: config.watch_max_vehicles_per_stream,
+            max_updates_per_s: config.watch_max_updates_per_s,
+            alert_lead_s: (config.watch_alert_lead_min * 60.0).round() as i64,
+            quiet_until_hour: config.watch_quiet_until_hour,
+            hysteresis_pct: config.watch_hysteresis_pct,
+            policy: config.policy(),
+            threads: config.effective_compute_threads(),
+        }
+    }
+
+    /// Lowest no-start probability of an outlook level, percent.
+    pub fn threshold_pct(&self, outlook: i32) -> f64 {
+        let t = &self.policy.thresholds;
+        match pb::StartOutlook::try_from(outlook) {
+            Ok(pb::StartOutlook::NoStartExpected) => t.no_start_from * 100.0,
+            Ok(pb::StartOutlook::AtRisk) => t.at_risk_from * 100.0,
+            Ok(pb::StartOutlook::Watch) => t.watch_from * 100.0,
+            _ => 0.0,
+        }
+    }
+
+    /// When an act-by alert for `act_by_s` becomes due: at the latest `alert_lead_s` before the
+    /// deadline, earlier at the quiet hour of the departure's night when one is set.
+    pub fn act_due_s(&self, act_by_s: i64, departure_s: i64) -> i64 {
+        let lead_due = act_by_s - self.alert_lead_s;
+        match self.quiet_until_hour {
+            None => lead_due,
+            Some(hour) => {
+                // The last time at `hour`:00 UTC at or before the departure.
+                let day = departure_s - departure_s.rem_euclid(86_400);
+                let mut quiet_end = day + i64::from(hour) * 3600;
+                if quiet_end > departure_s {
+                    quiet_end -= 86_400;
+                }
+                lead_due.min(quiet_end.max(lead_due - 86_400))
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn lead_and_quiet_hour() {
+        let mut s = WatchSettings::from_config(&Config::default());
+        s.alert_lead_s = 3600;
+        s.quiet_until_hour = None;
+        let dep = 1_800_000_000 - 1_800_000_000 % 86_400 + 6 * 3600; // 06:00 UTC
+        let act_by = dep - 3 * 3600; // 03:00
+        assert_eq!(s.act_due_s(act_by, dep), act_by - 3600);
+        s.quiet_until_hour = Some(1);
+        assert_eq!(s.act_due_s(act_by, dep), dep - 5 * 3600, "at 01:00");
+        s.quiet_until_hour = Some(4);
+        assert_eq!(s.act_due_s(act_by, dep), act_by - 3600, "the lead wins");
+    }
+}

@@ -1,0 +1,458 @@
+//! One watched vehicle's state on a WatchFleet stream, kept small: the profile as its protobuf
+//! encoding, the last telemetry, a fixed ring of coolant readings since key-off (for the cool-down
+//! fit), the heater state, the last score and the alerts it holds. Also builds the `VehicleNight`
+//! that re-scores it, and decides which alerts rise and clear after a score.
+
+use prost::Message;
+use prost_types::Timestamp;
+use startmargin_model::constants::celsius_to_kelvin;
+use startmargin_model::soak::fit_cooldown_time_constant_s;
+use startmargin_proto::v1 as pb;
+
+use super::settings::WatchSettings;
+
+/// Coolant readings kept per vehicle for the cool-down fit.
+pub const RING_LEN: usize = 12;
+/// Readings from which the cool-down time constant is fitted.
+pub const FIT_FROM_READINGS: usize = 4;
+/// A coolant rise above the previous reading that means heat is going in (heater on), kelvin.
+pub const HEATER_RISE_K: f64 = 2.0;
+
+/// Coolant readings after key-off: (seconds since the first reading, coolant °C, ambient °C).
+#[derive(Debug, Clone, Default)]
+pub(crate) struct Ring {
+    start_s: i64,
+    len: u8,
+    readings: [(f32, f32, f32); RING_LEN],
+}
+
+impl Ring {
+    fn clear(&mut self) {
+        self.len = 0;
+    }
+
+    fn last_coolant_c(&self) -> Option<f32> {
+        (self.len > 0).then(|| self.readings[usize::from(self.len) - 1].1)
+    }
+
+    /// Adds a reading; when full, the oldest but the first is dropped (the first anchors the decay).
+    fn push(&mut self, at_s: i64, coolant_c: f64, ambient_c: f64) {
+        if self.len == 0 {
+            self.start_s = at_s;
+        }
+        let entry = (
+            (at_s - self.start_s) as f32,
+            coolant_c as f32,
+            ambient_c as f32,
+        );
+        if usize::from(self.len) == RING_LEN {
+            self.readings.copy_within(2.., 1);
+            self.readings[RING_LEN - 1] = entry;
+        } else {
+            self.readings[usize::from(self.len)] = entry;
+            self.len += 1;
+        }
+    }
+
+    /// Fits the cool-down time constant, seconds, from 4 readings on.
+    fn fit_s(&self) -> Option<f64> {
+        let n = usize::from(self.len);
+        if n < FIT_FROM_READINGS {
+            return None;
+        }
+        let mut points = [(0.0_f64, 0.0_f64); RING_LEN];
+        let mut ambient_c = 0.0;
+        for (i, &(t, c, a)) in self.readings[..n].iter().enumerate() {
+            points[i] = (f64::from(t), celsius_to_kelvin(f64::from(c)));
+            ambient_c += f64::from(a);
+        }
+        ambient_c /= n as f64;
+        fit_cooldown_time_constant_s(&points[..n], celsius_to_kelvin(ambient_c)).ok()
+    }
+}
+
+/// An alert a vehicle holds: its id (FNV-1a), level and deadline.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Held {
+    pub(crate) id: u64,
+    pub(crate) outlook: i32,
+}
+
+/// The last score of a vehicle.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct LastScore {
+    pub(crate) outlook: i32,
+    pub(crate) no_start_pct: f32,
+    pub(crate) margin_k: f32,
+}
+
+/// A watched vehicle.
+#[derive(Debug, Clone)]
+pub(crate) struct Vehicle {
+    /// `VehicleProfile` in its protobuf encoding (decoded only to score).
+    pub(crate) profile: Box<[u8]>,
+    pub(crate) zone: Box<str>,
+    pub(crate) depot: Box<str>,
+    pub(crate) departure: Timestamp,
+    pub(crate) telemetry: Option<pb::VehicleTelemetry>,
+    pub(crate) ring: Ring,
+    /// Fitted cool-down time constant, hours.
+    pub(crate) tau_h: Option<f32>,
+    /// The block heater is on from this time (UTC seconds).
+    pub(crate) heater_from_s: Option<i64>,
+    /// Whether the vehicle has a block heater.
+    pub(crate) has_heater: bool,
+    pub(crate) last: Option<LastScore>,
+    /// When the act-by alert becomes due (UTC seconds), from the last score.
+    pub(crate) act_due_s: Option<i64>,
+    pub(crate) outlook_alert: Option<Held>,
+    pub(crate) act_alert: Option<Held>,
+}
+
+impl Vehicle {
+    /// A new vehicle from its upsert (already checked for an id and a departure).
+    pub(crate) fn new(w: &pb::WatchedVehicle, profile: &pb::VehicleProfile) -> Self {
+        let has_heater = profile
+            .aids
+            .as_ref()
+            .and_then(|a| a.block_heater_w)
+            .is_some_and(|w| w > 0.0);
+        Self {
+            profile: profile.encode_to_vec().into_boxed_slice(),
+            zone: w.forecast_zone_id.as_str().into(),
+            depot: w.depot_id.as_str().into(),
+            departure: w.departure_time.unwrap_or_default(),
+            telemetry: None,
+            ring: Ring::default(),
+            tau_h: None,
+            heater_from_s: None,
+            has_heater,
+            last: None,
+            act_due_s: None,
+            outlook_alert: None,
+            act_alert: None,
+        }
+    }
+
+    /// Bytes this vehicle holds on the heap (beyond `size_of::<Vehicle>()`).
+    pub(crate) fn heap_bytes(&self) -> usize {
+        self.profile.len() + self.zone.len() + self.depot.len()
+    }
+
+    /// Takes a telemetry report: buffers coolant readings since key-off, refits the cool-down
+    /// time constant, and infers the heater from the report or a coolant rise.
+    pub(crate) fn observe(&mut self, t: &pb::TelemetryUpdate, at_s: i64) {
+        let Some(telemetry) = t.telemetry.as_ref() else {
+            return;
+        };
+        if t.key_off {
+            self.ring.clear();
+            self.tau_h = None;
+            self.heater_from_s = None;
+        }
+        match t.block_heater_on {
+            Some(true) if self.has_heater => {
+                self.heater_from_s.get_or_insert(at_s);
+            }
+            Some(false) => self.heater_from_s = None,
+            _ => {}
+        }
+        if let Some(coolant_c) = telemetry.coolant_c {
+            let rising = self
+                .ring
+                .last_coolant_c()
+                .is_some_and(|last| coolant_c > f64::from(last) + HEATER_RISE_K);
+            if rising {
+                // Heat is going in: the cool-down has ended; with a block heater, take it as on.
+                self.ring.clear();
+                if self.has_heater && t.block_heater_on != Some(false) {
+                    self.heater_from_s.get_or_insert(at_s);
+                }
+            } else if self.heater_from_s.is_none()
+                && let Some(ambient_c) = telemetry.ambient_c
+            {
+                self.ring.push(at_s, coolant_c, ambient_c);
+                if let Some(tau_s) = self.ring.fit_s() {
+                    let h = tau_s / 3600.0;
+                    // Only values the model accepts; otherwise the profile's stays in use.
+                    self.tau_h = (0.25..=24.0).contains(&h).then_some(h as f32);
+                }
+            }
+        }
+        self.telemetry = Some(*telemetry);
+    }
+
+    /// The night to score: the profile with the fitted time constant, the last telemetry, the
+    /// zone, the departure and the heater from when it was taken as on.
+    pub(crate) fn night(&self) -> Result<pb::VehicleNight, prost::DecodeError> {
+        let mut profile = pb::VehicleProfile::decode(&*self.profile)?;
+        if let (Some(tau_h), Some(engine)) = (self.tau_h, profile.engine.as_mut()) {
+            engine.cooldown_time_constant_h = Some(f64::from(tau_h));
+        }
+        let block_heater_plan = self
+            .heater_from_s
+            .filter(|&from| from < self.departure.seconds)
+            .map(|from| pb::BlockHeaterPlan {
+                on_from: Some(Timestamp {
+                    seconds: from,
+                    nanos: 0,
+                }),
+                on_until: Some(self.departure),
+            });
+        Ok(pb::VehicleNight {
+            vehicle: Some(profile),
+            telemetry: self.telemetry,
+            forecast: None,
+            forecast_zone_id: self.zone.to_string(),
+            departure_time: Some(self.departure),
+            block_heater_plan,
+            options: None,
+            depot_id: self.depot.to_string(),
+        })
+    }
+}
+
+/// Deterministic alert id: FNV-1a of (vehicle id, departure, kind, level). No tenant, no stream.
+pub fn alert_id(vehicle_id: &str, departure: &Timestamp, kind: pb::AlertKind, outlook: i32) -> u64 {
+    let mut h = 0xcbf2_9ce4_8422_2325_u64;
+    let mut eat = |bytes: &[u8]| {
+        for b in bytes {
+            h = (h ^ u64::from(*b)).wrapping_mul(0x0100_0000_01b3);
+        }
+    };
+    eat(vehicle_id.as_bytes());
+    eat(&[0]);
+    eat(&departure.seconds.to_le_bytes());
+    eat(&departure.nanos.to_le_bytes());
+    eat(&(kind as i32).to_le_bytes());
+    eat(&outlook.to_le_bytes());
+    h
+}
+
+/// Formats an alert id as 16 hex digits.
+pub fn alert_id_hex(id: u64) -> String {
+    format!("{id:016x}")
+}
+
+/// A vehicle's score as the watch needs it.
+#[derive(Debug, Clone)]
+pub(crate) struct Score {
+    pub(crate) outlook: i32,
+    pub(crate) no_start_pct: f64,
+    pub(crate) margin_k: f64,
+    pub(crate) explanation: String,
+    pub(crate) actions: Vec<pb::Action>,
+}
+
+/// What a vehicle's new score changes: its outlook event and the alerts raised or cleared.
+pub(crate) fn apply_score(
+    vehicle_id: &str,
+    v: &mut Vehicle,
+    s: Score,
+    now_s: Option<i64>,
+    settings: &WatchSettings,
+    alerts: &mut Vec<pb::Alert>,
+) -> pb::OutlookChange {
+    let at_risk = pb::StartOutlook::AtRisk as i32;
+    let base = |v: &Vehicle, kind: pb::AlertKind, held: Held, state: pb::AlertState| pb::Alert {
+        alert_id: alert_id_hex(held.id),
+        vehicle_id: vehicle_id.to_string(),
+        depot_id: v.depot.to_string(),
+        departure_time: Some(v.departure),
+        kind: kind as i32,
+        outlook: held.outlook,
+        state: state as i32,
+        reason: String::new(),
+        actions: Vec::new(),
+        act_by: None,
+        no_start_pct: s.no_start_pct,
+    };
+
+    // Outlook alert: raised at AT_RISK and above, cleared with hysteresis.
+    if let Some(held) = v.outlook_alert {
+        let threshold = settings.threshold_pct(held.outlook);
+        let holds =
+            s.outlook >= held.outlook || s.no_start_pct >= threshold - settings.hysteresis_pct;
+        if !holds || s.outlook > held.outlook {
+            let mut a = base(v, pb::AlertKind::OutlookRise, held, pb::AlertState::Cleared);
+            a.reason = format!(
+                "no-start probability {:.1} % is below {:.1} %: outlook back to {}",
+                s.no_start_pct,
+                threshold - settings.hysteresis_pct,
+                outlook_name(s.outlook)
+            );
+            if s.outlook > held.outlook {
+                a.reason = format!("superseded by {}", outlook_name(s.outlook));
+            }
+            alerts.push(a);
+            v.outlook_alert = None;
+        }
+    }
+    if v.outlook_alert.is_none() && s.outlook >= at_risk {
+        let held = Held {
+            id: alert_id(
+                vehicle_id,
+                &v.departure,
+                pb::AlertKind::OutlookRise,
+                s.outlook,
+            ),
+            outlook: s.outlook,
+        };
+        let mut a = base(v, pb::AlertKind::OutlookRise, held, pb::AlertState::Raised);
+        a.reason = format!(
+            "{}: {:.1} % chance of no start at departure. {}",
+            outlook_name(s.outlook),
+            s.no_start_pct,
+            s.explanation
+        );
+        a.act_by = earliest_act_by(&s.actions);
+        a.actions = s.actions.clone();
+        alerts.push(a);
+        v.outlook_alert = Some(held);
+    }
+
+    // Act-by alert: due at the earlier of (deadline − lead) and the quiet hour's end. It holds
+    // while the earliest deadline is due at this level, so it follows from the current state
+    // alone (a replay on a new stream raises the same one).
+    let act_by = earliest_act_by(&s.actions);
+    v.act_due_s = act_by.map(|t| settings.act_due_s(t.seconds, v.departure.seconds));
+    let due_now = matches!((v.act_due_s, now_s), (Some(due), Some(now)) if now >= due);
+    if let Some(held) = v.act_alert
+        && (!due_now || held.outlook != s.outlook)
+    {
+        let mut a = base(v, pb::AlertKind::ActByNear, held, pb::AlertState::Cleared);
+        a.reason = if act_by.is_none() {
+            "no timed action is needed any more".to_string()
+        } else if due_now {
+            format!("superseded at outlook {}", outlook_name(s.outlook))
+        } else {
+            "the deadline moved later: alerted again when it nears".to_string()
+        };
+        alerts.push(a);
+        v.act_alert = None;
+    }
+    if v.act_alert.is_none()
+        && due_now
+        && let Some(act_by) = act_by
+    {
+        let held = Held {
+            id: alert_id(
+                vehicle_id,
+                &v.departure,
+                pb::AlertKind::ActByNear,
+                s.outlook,
+            ),
+            outlook: s.outlook,
+        };
+        let mut a = base(v, pb::AlertKind::ActByNear, held, pb::AlertState::Raised);
+        let first = s
+            .actions
+            .iter()
+            .find(|x| x.act_by == Some(act_by))
+            .map_or("", |x| x.summary.as_str());
+        a.reason = format!("act by {} UTC: {first}", hh_mm(act_by.seconds));
+        a.act_by = Some(act_by);
+        a.actions = s.actions.clone();
+        alerts.push(a);
+        v.act_alert = Some(held);
+    }
+
+    v.last = Some(LastScore {
+        outlook: s.outlook,
+        no_start_pct: s.no_start_pct as f32,
+        margin_k: s.margin_k as f32,
+    });
+    pb::OutlookChange {
+        vehicle_id: vehicle_id.to_string(),
+        departure_time: Some(v.departure),
+        outlook: s.outlook,
+        no_start_pct: s.no_start_pct,
+        start_margin_k: s.margin_k,
+        fitted_cooldown_time_constant_h: v.tau_h.map(f64::from),
+        block_heater_on: v.heater_from_s.is_some(),
+    }
+}
+
+/// Clears every alert a vehicle holds (removal, departure change).
+pub(crate) fn clear_all(
+    vehicle_id: &str,
+    v: &mut Vehicle,
+    reason: &str,
+    alerts: &mut Vec<pb::Alert>,
+) {
+    let pct = v.last.map_or(0.0, |l| f64::from(l.no_start_pct));
+    for (kind, held) in [
+        (pb::AlertKind::OutlookRise, v.outlook_alert.take()),
+        (pb::AlertKind::ActByNear, v.act_alert.take()),
+    ] {
+        if let Some(held) = held {
+            alerts.push(pb::Alert {
+                alert_id: alert_id_hex(held.id),
+                vehicle_id: vehicle_id.to_string(),
+                depot_id: v.depot.to_string(),
+                departure_time: Some(v.departure),
+                kind: kind as i32,
+                outlook: held.outlook,
+                state: pb::AlertState::Cleared as i32,
+                reason: reason.to_string(),
+                actions: Vec::new(),
+                act_by: None,
+                no_start_pct: pct,
+            });
+        }
+    }
+}
+
+fn earliest_act_by(actions: &[pb::Action]) -> Option<Timestamp> {
+    actions
+        .iter()
+        .filter_map(|a| a.act_by)
+        .min_by_key(|t| (t.seconds, t.nanos))
+}
+
+fn hh_mm(at_s: i64) -> String {
+    let day_s = at_s.rem_euclid(86_400);
+    format!("{:02}:{:02}", day_s / 3600, (day_s % 3600) / 60)
+}
+
+fn outlook_name(o: i32) -> &'static str {
+    match pb::StartOutlook::try_from(o) {
+        Ok(pb::StartOutlook::Assured) => "ASSURED",
+        Ok(pb::StartOutlook::Watch) => "WATCH",
+        Ok(pb::StartOutlook::AtRisk) => "AT_RISK",
+        Ok(pb::StartOutlook::NoStartExpected) => "NO_START_EXPECTED",
+        _ => "UNSPECIFIED",
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn alert_ids_are_deterministic_and_distinct() {
+        let dep = Timestamp {
+            seconds: 1_800_000_000,
+            nanos: 0,
+        };
+        let a = alert_id("v1", &dep, pb::AlertKind::OutlookRise, 3);
+        assert_eq!(a, alert_id("v1", &dep, pb::AlertKind::OutlookRise, 3));
+        assert_ne!(a, alert_id("v1", &dep, pb::AlertKind::OutlookRise, 4));
+        assert_ne!(a, alert_id("v1", &dep, pb::AlertKind::ActByNear, 3));
+        assert_ne!(a, alert_id("v2", &dep, pb::AlertKind::OutlookRise, 3));
+    }
+
+    #[test]
+    fn ring_keeps_the_first_reading_and_the_latest() {
+        let mut r = Ring::default();
+        for i in 0..(RING_LEN as i64 + 3) {
+            r.push(1000 + i * 60, 80.0 - i as f64, -10.0);
+        }
+        assert_eq!(usize::from(r.len), RING_LEN);
+        assert_eq!(r.readings[0].0, 0.0);
+        assert_eq!(
+            r.readings[RING_LEN - 1].0,
+            ((RING_LEN as i64 + 2) * 60) as f32
+        );
+    }
+}
