@@ -243,8 +243,8 @@ pub fn fuel_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     );
     svg.text(
         (left, 56.0),
-        "Tank and filter temperature through the night (°C). Amber: below cloud point, wax forms. \
-         Red: below CFPP, the filter plugs. Dashed grey: departure.",
+        "Tank and filter temperature through the night (°C). Shaded bands under the legend's lines: \
+         below cloud point (wax forms), below CFPP (the filter plugs). Dashed line: departure.",
         12.0,
         Anchor::Start,
         "#555",
