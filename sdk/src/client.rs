@@ -151,8 +151,13 @@ impl Client {
 
     /// The next channel, round-robin.
     fn pick(&self) -> StartMarginServiceClient<Channel> {
-        let i = self.next.fetch_add(1, Ordering::Relaxed) % self.channels.len();
-        self.channels[i].clone()
+        self.pick_from(self.next.fetch_add(1, Ordering::Relaxed), 0)
+    }
+
+    /// The channel of a call's `attempt`: a retry always moves on from the channel its call
+    /// started on, whatever other calls do meanwhile, so a dead endpoint is not tried twice in a row.
+    fn pick_from(&self, start: usize, attempt: u32) -> StartMarginServiceClient<Channel> {
+        self.channels[(start + attempt as usize) % self.channels.len()].clone()
     }
 
     /// One idempotent unary call with deadline and retries on `UNAVAILABLE`.
@@ -163,17 +168,19 @@ impl Client {
         Fut: Future<Output = Result<tonic::Response<Resp>, tonic::Status>>,
     {
         let mut attempt = 0u32;
+        let start = self.next.fetch_add(1, Ordering::Relaxed);
         loop {
             let mut r = tonic::Request::new(request.clone());
+            let channel = self.pick_from(start, attempt);
             let outcome = match self.timeout {
                 Some(t) => {
                     r.set_timeout(t);
-                    match tokio::time::timeout(t, call(self.pick(), r)).await {
+                    match tokio::time::timeout(t, call(channel, r)).await {
                         Ok(outcome) => outcome,
                         Err(_) => return Err(deadline_exceeded(t)),
                     }
                 }
-                None => call(self.pick(), r).await,
+                None => call(channel, r).await,
             };
             match outcome {
                 Ok(response) => return Ok(response.into_inner()),
