@@ -264,3 +264,38 @@ pub fn auth_config(name: &str, tokens: &[(&str, &str)]) -> Config {
         ..loopback_config()
     }
 }
+
+/// The `startmargind` binary of this build, built if needed next to the calling test's executable
+/// (tests that run real server processes: drain, restart).
+pub fn startmargind_binary() -> std::path::PathBuf {
+    let exe = std::env::current_exe().expect("test executable path");
+    // <target>/<profile>/deps/<test>-… → <target>/<profile>/startmargind
+    let profile_dir = exe
+        .parent()
+        .and_then(|d| d.parent())
+        .expect("target/<profile>/deps");
+    let target_dir = profile_dir.parent().expect("target folder");
+    let release = profile_dir.file_name().is_some_and(|n| n == "release");
+    let manifest = std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../Cargo.toml");
+    let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_string());
+    let mut build = std::process::Command::new(cargo);
+    build
+        .args([
+            "build",
+            "-q",
+            "-p",
+            "startmargin-service",
+            "--bin",
+            "startmargind",
+        ])
+        .arg("--manifest-path")
+        .arg(&manifest)
+        .arg("--target-dir")
+        .arg(target_dir);
+    if release {
+        build.arg("--release");
+    }
+    let status = build.status().expect("run cargo build");
+    assert!(status.success(), "cannot build startmargind");
+    profile_dir.join("startmargind")
+}

@@ -29,35 +29,9 @@ use tonic_health::pb::HealthCheckRequest;
 use tonic_health::pb::health_check_response::ServingStatus;
 use tonic_health::pb::health_client::HealthClient;
 
-/// The `startmargind` binary, built if needed next to this test's executable.
+/// The `startmargind` binary (shared helper).
 fn server_binary() -> PathBuf {
-    let exe = std::env::current_exe().expect("test executable path");
-    let profile_dir = exe
-        .parent()
-        .and_then(|deps| deps.parent())
-        .expect("target/<profile>/deps");
-    let target_dir = profile_dir.parent().expect("target folder");
-    let release = profile_dir.file_name().is_some_and(|n| n == "release");
-    let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_string());
-    let mut build = Command::new(cargo);
-    build
-        .args([
-            "build",
-            "-q",
-            "-p",
-            "startmargin-service",
-            "--bin",
-            "startmargind",
-        ])
-        .arg("--target-dir")
-        .arg(target_dir)
-        .current_dir(env!("CARGO_MANIFEST_DIR"));
-    if release {
-        build.arg("--release");
-    }
-    let status = build.status().expect("run cargo build");
-    assert!(status.success(), "cannot build startmargind");
-    profile_dir.join("startmargind")
+    startmargin_e2e::startmargind_binary()
 }
 
 /// A free loopback port: bind port 0, read it, release it.

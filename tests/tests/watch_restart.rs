@@ -16,35 +16,9 @@ use startmargin_proto::v1::watch_fleet_request::Update;
 use startmargin_sdk::{WatchBuilder, WatchEvent, WatchHandle};
 use watch_common::*;
 
-/// The `startmargind` binary of this build, built if needed (cargo builds only this test).
+/// The `startmargind` binary (shared helper).
 fn server_binary() -> PathBuf {
-    let exe = std::env::current_exe().expect("test binary path");
-    // <target>/<profile>/deps/watch_restart-… → <target>/<profile>/startmargind
-    let profile_dir = exe.parent().and_then(|d| d.parent()).expect("profile dir");
-    let target_dir = profile_dir.parent().expect("target dir");
-    let release = profile_dir.file_name().is_some_and(|n| n == "release");
-    let manifest = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../Cargo.toml");
-    let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_string());
-    let mut build = Command::new(cargo);
-    build
-        .args([
-            "build",
-            "-q",
-            "-p",
-            "startmargin-service",
-            "--bin",
-            "startmargind",
-        ])
-        .arg("--manifest-path")
-        .arg(&manifest)
-        .arg("--target-dir")
-        .arg(target_dir);
-    if release {
-        build.arg("--release");
-    }
-    let status = build.status().expect("cargo runs");
-    assert!(status.success(), "startmargind builds");
-    profile_dir.join("startmargind")
+    startmargin_e2e::startmargind_binary()
 }
 
 /// A free loopback port: bind port 0, note it, release it.
