@@ -276,7 +276,6 @@ pub struct Assessment {
 #[derive(Debug, Clone, Copy, PartialEq)]
 struct StartState {
     at_s: f64,
-    air_t_k: f64,
     engine_t_k: f64,
     battery_t_k: f64,
     tank_t_k: f64,
@@ -366,7 +365,6 @@ fn start_state(night: &VehicleNight) -> Result<StartState, ModelError> {
     };
     Ok(StartState {
         at_s,
-        air_t_k,
         engine_t_k,
         battery_t_k,
         tank_t_k,
@@ -666,7 +664,6 @@ fn start_point(
         fuel_filter_t_k,
         air_t_k,
     };
-    let _ = start.air_t_k;
 
     let engine = &night.engine;
     let cranking_input = CrankingInput {
