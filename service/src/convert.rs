@@ -243,10 +243,6 @@ pub fn combustion_to_pb(c: CombustionSystem) -> pb::CombustionSystem {
     }
 }
 
-/// Starter power of a fully custom engine when not given: about 0.6 kW per litre (estimate from
-/// reference.md §8.5: 1.4–2.5 kW passenger cars, 4–9 kW heavy duty).
-const CUSTOM_STARTER_W_PER_L: f64 = 600.0;
-
 fn engine_from_pb(
     v: &mut Violations,
     e: &pb::EngineSpec,
@@ -332,9 +328,8 @@ fn engine_from_pb(
                 v.add(f(name), "is required when archetype_id is empty");
             }
         }
-        let generic = archetypes::find("medium-di-i6").expect("built-in archetype");
         (
-            generic.engine,
+            None,
             AidConfig {
                 glow_plugs: None,
                 glow_preheat_s: 0.0,
@@ -344,7 +339,7 @@ fn engine_from_pb(
         )
     } else {
         match archetypes::find(&e.archetype_id) {
-            Some(a) => (a.engine, a.aids),
+            Some(a) => (Some(a.engine), a.aids),
             None => {
                 let ids: Vec<_> = archetypes::ARCHETYPES.iter().map(|a| a.id).collect();
                 v.add(
@@ -359,16 +354,11 @@ fn engine_from_pb(
             }
         }
     };
-    let mut overrides = overrides;
-    if e.archetype_id.is_empty()
-        && overrides.starter_power_w.is_none()
-        && let (Some(b), Some(s), Some(c)) =
-            (overrides.bore_m, overrides.stroke_m, overrides.cylinders)
-    {
-        let litres = std::f64::consts::FRAC_PI_4 * b * b * s * f64::from(c) * 1000.0;
-        overrides.starter_power_w = Some((CUSTOM_STARTER_W_PER_L * litres).clamp(1_000.0, 9_000.0));
-    }
-    let engine = match archetypes::apply_overrides(&base_engine, &overrides) {
+    let resolved = match base_engine {
+        Some(base) => archetypes::apply_overrides(&base, &overrides),
+        None => archetypes::custom_engine(&overrides),
+    };
+    let engine = match resolved {
         Ok(engine) => engine,
         Err(err) => {
             if v.0.is_empty() {

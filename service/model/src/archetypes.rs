@@ -338,6 +338,26 @@ pub fn apply_overrides(
     Ok(e)
 }
 
+/// Starter power of a fully specified engine when the caller gives none, W per litre of
+/// displacement (estimate from reference.md §8.5: 1.4–2.5 kW passenger cars, 4–9 kW heavy duty).
+pub const CUSTOM_STARTER_W_PER_L: f64 = 600.0;
+
+/// The generic direct-injection engine a fully specified engine starts from.
+pub const GENERIC_ARCHETYPE_ID: &str = "medium-di-i6";
+
+/// A fully specified engine (no archetype): the caller's geometry on a generic direct-injection
+/// engine, with the size-dependent defaults (leak area, heat capacity, starter power) scaled to it.
+pub fn custom_engine(overrides: &EngineOverrides) -> Result<EngineConfig, ModelError> {
+    let generic =
+        find(GENERIC_ARCHETYPE_ID).ok_or(ModelError::Inconsistent("generic archetype missing"))?;
+    let mut e = apply_overrides(&generic.engine, overrides)?;
+    if overrides.starter_power_w.is_none() {
+        e.starter_power_w =
+            (CUSTOM_STARTER_W_PER_L * g_displacement_l(&e.geometry)).clamp(1_000.0, 9_000.0);
+    }
+    Ok(e)
+}
+
 fn g_displacement_l(g: &EngineGeometry) -> f64 {
     g.displacement_m3() * 1000.0
 }
@@ -400,5 +420,41 @@ mod tests {
             ..Default::default()
         };
         assert!(apply_overrides(&base, &bad).is_err());
+    }
+
+    #[test]
+    fn custom_engines_scale_their_starter_with_displacement() {
+        // 0.6 kW per litre, clamped to 1–9 kW (estimate inside reference.md §8.5's bands:
+        // 1.4–2.5 kW passenger cars, 4–9 kW heavy duty). 2.0 L → 1.2 kW; 12.9 L → 7.76 kW.
+        let small = EngineOverrides {
+            bore_m: Some(0.084),
+            stroke_m: Some(0.090),
+            compression_ratio: Some(16.5),
+            cylinders: Some(4),
+            ..Default::default()
+        };
+        let s = custom_engine(&small).unwrap();
+        assert!(
+            (s.starter_power_w - 1_200.0).abs() < 30.0,
+            "{}",
+            s.starter_power_w
+        );
+        let big = EngineOverrides {
+            bore_m: Some(0.131),
+            stroke_m: Some(0.160),
+            cylinders: Some(6),
+            ..small
+        };
+        let b = custom_engine(&big).unwrap();
+        assert!(
+            (b.starter_power_w - 7_760.0).abs() < 50.0,
+            "{}",
+            b.starter_power_w
+        );
+        let given = EngineOverrides {
+            starter_power_w: Some(3_000.0),
+            ..small
+        };
+        assert_eq!(custom_engine(&given).unwrap().starter_power_w, 3_000.0);
     }
 }
