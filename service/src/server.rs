@@ -12,6 +12,20 @@
 //! call's status code and latency in [`crate::metrics`] and refuses streams beyond
 //! `max_open_streams` at once with RESOURCE_EXHAUSTED; the Prometheus endpoint of
 //! [`crate::metrics_http`] on `metrics_listen`.
+//!
+//! Transport: every accepted connection must send its HTTP/2 preface (or TLS ClientHello) within
+//! `handshake_timeout_s` ([`handshake`]). Flow control is set so that a stream the server reads
+//! slowly (back-pressure) can never trip h2's small-DATA-frame budget: h2 charges each buffered
+//! DATA frame under 256 bytes up to 256 bytes against a per-connection budget of half the
+//! connection window, so with hyper's default 1 MiB windows a client streaming items under
+//! ~170 bytes (one frame each) into a paused reader is cut off with GOAWAY ENHANCE_YOUR_CALM
+//! "too_many_data_frames", killing every call on the connection. The server therefore opens the
+//! connection window to its maximum (budget ≈ 1 GiB) and bounds what is really buffered with the
+//! per-stream window `http2_stream_window_bytes` (memory per connection ≤
+//! `max_concurrent_streams` × that window); `Config::validate` checks that even 5-byte frames
+//! (an empty gRPC message) filling every stream window stay under the budget.
+
+pub mod handshake;
 
 use std::net::SocketAddr;
 use std::pin::Pin;
@@ -84,7 +98,12 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
         .await
         .with_context(|| format!("cannot listen on {}", config.listen))?;
     let addr = listener.local_addr()?;
-    let incoming = TcpIncoming::from(listener).with_nodelay(Some(true));
+    let handshake_timeout = config.handshake_timeout();
+    let incoming = TcpIncoming::from(listener)
+        .with_nodelay(Some(true))
+        .map(move |accepted| {
+            accepted.map(|tcp| handshake::HandshakeDeadline::new(tcp, handshake_timeout))
+        });
 
     let shutdown = CancellationToken::new();
     let draining = CancellationToken::new();
@@ -132,6 +151,11 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
         .layer(CallLayer::new(config.max_open_streams))
         .layer(AuthLayer::new(tokens))
         .max_concurrent_streams(config.max_concurrent_streams)
+        .initial_connection_window_size(crate::config::HTTP2_MAX_WINDOW_BYTES)
+        .initial_stream_window_size(config.http2_stream_window_bytes)
+        // A measured (adaptive) window would shrink the connection window and with it h2's
+        // small-frame budget; fixed windows keep the bound above.
+        .http2_adaptive_window(Some(false))
         .http2_keepalive_interval(config.http2_keepalive_interval())
         .http2_keepalive_timeout(Some(config.http2_keepalive_timeout()))
         .add_service(health)

@@ -60,7 +60,9 @@ pub fn server_tls_config(config: &Config) -> Result<Option<ServerTlsConfig>, Tls
     };
     let cert = read_pem("the TLS certificate", cert, "CERTIFICATE")?;
     let key = read_pem("the TLS key", key, "PRIVATE KEY")?;
-    let mut tls = ServerTlsConfig::new().identity(Identity::from_pem(cert, key));
+    let mut tls = ServerTlsConfig::new()
+        .identity(Identity::from_pem(cert, key))
+        .timeout(config.handshake_timeout());
     if let Some(ca) = &config.tls_client_ca_path {
         let ca = read_pem("the client CA", ca, "CERTIFICATE")?;
         tls = tls
