@@ -34,14 +34,12 @@ use std::task::{Context, Poll};
 use std::time::{Duration, Instant};
 
 use anyhow::Context as _;
-use startmargin_proto::v1::start_margin_service_server::StartMarginServiceServer;
 use tokio::net::TcpListener;
 use tokio::sync::{OwnedSemaphorePermit, Semaphore, mpsc, oneshot};
 use tokio::task::JoinHandle;
 use tokio_stream::StreamExt as _;
 use tokio_stream::wrappers::ReceiverStream;
 use tokio_util::sync::CancellationToken;
-use tonic::server::NamedService;
 use tonic::transport::Server;
 use tonic::transport::server::TcpIncoming;
 use tonic::{Request, Response, Status};
@@ -53,11 +51,12 @@ use tracing::{info, warn};
 
 use crate::api::{DRAINING_MESSAGE, StartMarginApi};
 use crate::auth::{AuthLayer, TokenTable};
+use crate::codec::ApiRoutes;
 use crate::config::Config;
 use crate::metrics;
 
 /// Fully qualified name of the API service, as health checks and reflection name it.
-pub const SERVICE_NAME: &str = <StartMarginServiceServer<StartMarginApi> as NamedService>::NAME;
+pub const SERVICE_NAME: &str = crate::codec::SERVICE_NAME;
 
 /// A server running on the current tokio runtime.
 #[derive(Debug)]
@@ -121,8 +120,7 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
 
     let api =
         StartMarginApi::new(&config, draining.clone()).context("cannot start compute threads")?;
-    let api = StartMarginServiceServer::new(api)
-        .max_decoding_message_size(config.max_decode_message_bytes);
+    let api = ApiRoutes::new(api, config.max_decode_message_bytes);
     let reflection_v1 = tonic_reflection::server::Builder::configure()
         .register_encoded_file_descriptor_set(startmargin_proto::FILE_DESCRIPTOR_SET)
         .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
