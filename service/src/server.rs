@@ -88,6 +88,17 @@ impl RunningServer {
     }
 }
 
+/// Checks everything [`spawn`] would refuse before it binds: the keys ([`Config::validate`]),
+/// the TLS files (readable, parsable, key matching the certificate, client CA usable) and the
+/// token sources (files readable, variables set, entries well formed). `check-config` runs it,
+/// and `serve` exits 64 when it fails.
+pub fn check_startup(config: &Config) -> anyhow::Result<()> {
+    config.validate()?;
+    crate::tls::server_tls_config(config)?;
+    TokenTable::from_config(config)?;
+    Ok(())
+}
+
 /// Binds `config.listen` (use port 0 for a free port), starts the server and returns at once.
 pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
     config.validate()?;

@@ -261,13 +261,20 @@ mod tests {
 
     #[test]
     fn broken_top_level_falls_back_to_the_top_path() {
-        for raw in [&[0xff_u8][..], &[0x1a, 0x7f, b'a'], &[0x07]] {
+        // A lone continuation byte, a wire type 7 key, and an item_id whose length runs past
+        // the end (prost names that field).
+        let cases: [(&[u8], &str); 3] = [
+            (&[0xff], "item"),
+            (&[0x07], "item"),
+            (&[0x1a, 0x7f, b'a'], "item_id"),
+        ];
+        for (raw, field) in cases {
             let bad = decode::<pb::AssessFleetRequest>(raw.to_vec().into(), 3, FLEET)
                 .expect_err("broken");
             let ApiError::InvalidArgument(v) = &bad.error else {
                 panic!("{:?}", bad.error)
             };
-            assert_eq!(v[0].field, "item", "{raw:?}: {v:?}");
+            assert_eq!(v[0].field, field, "{raw:?}: {v:?}");
             assert_eq!(bad.string_field(3), None);
         }
     }
