@@ -637,6 +637,45 @@ mod tests {
     }
 
     #[test]
+    fn every_key_is_documented_in_the_example() {
+        let example = include_str!("../../deploy/startmargin.example.toml");
+        let keys = serde_json::to_value(Config::default()).expect("serializes");
+        for key in keys.as_object().expect("an object").keys() {
+            assert!(
+                example.contains(&format!("#{key} =")) || example.contains(&format!("\n{key} =")),
+                "{key} is not in deploy/startmargin.example.toml"
+            );
+        }
+    }
+
+    #[test]
+    fn stream_window_is_checked_against_the_small_frame_budget() {
+        Config::default().validate().expect("the defaults fit");
+        let c = Config {
+            max_concurrent_streams: 1024,
+            ..Config::default()
+        };
+        let Err(ConfigError::Invalid(problems)) = c.validate() else {
+            panic!("1024 streams of 64 KiB exceed the budget")
+        };
+        assert!(
+            problems[0].contains("http2_stream_window_bytes"),
+            "{problems:?}"
+        );
+        let c = Config {
+            max_concurrent_streams: 1024,
+            http2_stream_window_bytes: 16 * 1024,
+            handshake_timeout_s: 0.0,
+            ..Config::default()
+        };
+        let Err(ConfigError::Invalid(problems)) = c.validate() else {
+            panic!("a zero handshake timeout is refused")
+        };
+        assert_eq!(problems.len(), 1, "{problems:?}");
+        assert!(problems[0].contains("handshake_timeout_s"), "{problems:?}");
+    }
+
+    #[test]
     fn missing_file_is_reported() {
         let e =
             Config::load(Some(Path::new("/nonexistent/startmargin.toml"))).expect_err("missing");
