@@ -5,6 +5,7 @@ of small items against a server and prints one JSON line with what came back.
 Usage:
   stream_client.py fleet --target 127.0.0.1:PORT --vehicles N
   stream_client.py watch --target 127.0.0.1:PORT --vehicles N
+  stream_client.py telemetry --target 127.0.0.1:PORT --vehicles N --updates M --rate PER_S
 
 The client reads the way an ordinary application does: a generator feeds requests as fast as
 grpcio takes them, and the responses are read as they come. No pacing, no custom channel options.
@@ -183,11 +184,67 @@ def run_watch(channel, vehicles):
     }
 
 
+def run_telemetry(channel, vehicles, updates, rate_per_s):
+    """Watches `vehicles` vehicles, then sends `updates` telemetry reports paced at
+    `rate_per_s`, and reads the events until the server has refused or taken them all."""
+    from startmargin.v1 import service_pb2_grpc as rpc
+
+    pb = messages()
+    done = {"sent": 0}
+
+    def requests():
+        yield pb.WatchFleetRequest(sequence=1, zone_forecast=pb.WatchZoneForecast(zone_id="z", forecast=forecast(pb)))
+        for i in range(vehicles):
+            yield pb.WatchFleetRequest(
+                sequence=i + 2,
+                vehicle=pb.WatchedVehicle(vehicle=profile(pb, f"v{i}"), forecast_zone_id="z", departure_time=ts(pb, 10)),
+            )
+        started = time.monotonic()
+        for k in range(updates):
+            due = started + k / rate_per_s
+            wait = due - time.monotonic()
+            if wait > 0:
+                time.sleep(wait)
+            minutes = 1 + k // vehicles
+            yield pb.WatchFleetRequest(
+                sequence=10_000_000 + k,
+                telemetry=pb.TelemetryUpdate(
+                    vehicle_id=f"v{k % vehicles}",
+                    telemetry=pb.VehicleTelemetry(observed_at=ts(pb, minutes / 60.0), coolant_c=80.0 - 0.1 * minutes),
+                ),
+            )
+            done["sent"] = k + 1
+
+    stub = rpc.StartMarginServiceStub(channel)
+    started = time.monotonic()
+    status, detail, events, refused = "OK", "", 0, 0
+    try:
+        for response in stub.WatchFleet(requests()):
+            events += 1
+            if response.WhichOneof("event") == "refused":
+                refused += 1
+    except grpc.RpcError as e:
+        status, detail = e.code().name, e.details() or ""
+    elapsed_s = time.monotonic() - started
+    return {
+        "rpc": "WatchFleet telemetry",
+        "vehicles": vehicles,
+        "sent": done["sent"],
+        "events": events,
+        "refused": refused,
+        "status": status,
+        "detail": detail,
+        "elapsed_s": round(elapsed_s, 3),
+    }
+
+
 def main():
     parser = argparse.ArgumentParser()
-    parser.add_argument("mode", choices=["fleet", "watch"])
+    parser.add_argument("mode", choices=["fleet", "watch", "telemetry"])
     parser.add_argument("--target", required=True)
     parser.add_argument("--vehicles", type=int, default=1000)
+    parser.add_argument("--updates", type=int, default=20000)
+    parser.add_argument("--rate", type=float, default=2000.0)
     parser.add_argument("--timeout-s", type=float, default=600.0)
     args = parser.parse_args()
     generate_stubs()
@@ -195,8 +252,10 @@ def main():
         grpc.channel_ready_future(channel).result(timeout=args.timeout_s)
         if args.mode == "fleet":
             result = run_fleet(channel, args.vehicles)
-        else:
+        elif args.mode == "watch":
             result = run_watch(channel, args.vehicles)
+        else:
+            result = run_telemetry(channel, args.vehicles, args.updates, args.rate)
     print(json.dumps(result), flush=True)
 
 
