@@ -12,8 +12,10 @@ grpcio takes them, and the responses are read as they come. No pacing, no custom
 """
 
 import argparse
+import atexit
 import json
 import os
+import shutil
 import sys
 import tempfile
 import time
@@ -29,6 +31,7 @@ FORECAST_START_S = 1_736_877_600
 def generate_stubs():
     """Compiles proto/ into Python modules in a fresh folder and puts it on sys.path."""
     out = tempfile.mkdtemp(prefix="startmargin-stubs-")
+    atexit.register(shutil.rmtree, out, ignore_errors=True)
     include = os.path.join(os.path.dirname(protoc.__file__), "_proto")
     files = [
         os.path.join("startmargin", "v1", name)
