@@ -307,7 +307,7 @@ fn a_stuck_relay_is_met_with_a_repair_worth_the_glow_plug_gain() {
                 "{} {air_c}",
                 a.id
             );
-            assert!(repair.no_start_after < d.probability.probability);
+            assert!(repair.no_start_after <= d.probability.probability);
             assert_eq!(repair.act_by_s, Some(DEPARTURE_S));
             assert!(
                 d.actions

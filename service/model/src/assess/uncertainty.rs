@@ -255,7 +255,8 @@ pub fn no_start_probability(
 ///
 /// First-order second-moment reliability (Cornell 1969, from memory): each mode's margin is taken
 /// as normal with the central value m and a spread S = √(σ_model² + Var_inputs); its no-start
-/// probability is Φ(−m/S), and the night's is that of the most likely mode (the modes share their
+/// probability is Φ(−m/S) (Φ(−m/σ_model) once m < 0, a conservative choice that keeps the
+/// probability monotone in the margin), and the night's is that of the most likely mode (the modes share their
 /// driver, the cold, so the union is close to its largest member: the Fréchet lower bound). So the
 /// probability is at least 50 % exactly when the binding margin is at most zero: the verdict, the
 /// headline margin and the probability never disagree. The input variance comes from the sigma
@@ -320,7 +321,13 @@ pub fn no_start_probability_from(
     for (k, mode) in FailureMode::ALL.iter().enumerate() {
         let sigma = mode.model_sigma();
         spreads[k] = (sigma * sigma + variance[k]).sqrt();
-        mode_probabilities[k] = normal_cdf(-centre.modes.get(*mode) / spreads[k]);
+        let m = centre.modes.get(*mode);
+        // Below zero the vehicle fails at its central inputs: the inputs' spread may not pull the
+        // probability back towards 50 % (a colder night would otherwise read as less likely to
+        // fail, its larger spread outweighing its lower margin); the model's own error alone
+        // applies. Continuous at zero, monotone in the margin on both sides.
+        let s = if m < 0.0 { sigma } else { spreads[k] };
+        mode_probabilities[k] = normal_cdf(-m / s);
     }
     let mut b = 0;
     for k in 1..4 {
