@@ -155,7 +155,7 @@ mod tests {
             gap_bound: 0.0,
         };
         let text = plan_text(&plan, 3.0);
-        assert!(text.contains("2 free on a 2.6 kW circuit. Plug-in plan (optimal):"));
+        assert!(text.contains("1 free on a 2.6 kW circuit. Plug-in plan (optimal):"));
         assert!(text.contains("PU-11   plug in by 01:30 (750 W): no-start 100.0 % -> 38.2 %"));
         assert!(text.contains("outdoor-rated cords"));
         assert!(

@@ -8,7 +8,7 @@
 //! 04:30 and 07:30. Their fuels, batteries, oils and start aids differ on purpose: one truck still
 //! carries summer No. 2, a sweeper runs B20 soy, a pickup's glow-plug relay is stuck, a van's
 //! battery is at 55 %, a backhoe's battery is old. The shuttle bus sleeps in the shed, plugged in
-//! all night; four yard vehicles have block heaters but the yard has only two free outlets on a
+//! all night; four yard vehicles have block heaters but the yard has only one free outlet on a
 //! 2.6 kW circuit tonight, so the run asks the server for the depot's plug-in plan.
 //!
 //! Times: local time is UTC−06:00 (fixed offset, no daylight saving in January); the API gets UTC.
@@ -30,7 +30,7 @@ pub const ZONE_ID: &str = "frostmere-yard";
 /// Depot id for the plug-in plan of the yard's block-heater outlets.
 pub const DEPOT_ID: &str = "frostmere-yard";
 /// Block-heater outlets free in the yard tonight.
-pub const YARD_OUTLETS: u32 = 2;
+pub const YARD_OUTLETS: u32 = 1;
 /// Power the yard's outlet circuit may carry at once, kW.
 pub const YARD_CIRCUIT_KW: f64 = 2.6;
 /// Local time offset from UTC, seconds (UTC−06:00).

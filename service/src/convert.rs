@@ -853,16 +853,13 @@ pub fn decide(
     .map_err(model_err)?;
     // Depot candidate: the vehicle's probability with its heater from the planned time.
     let plug_in = match d.heater {
-        // A heater that cannot lower the probability would only take an outlet.
-        Some(h) if !night.depot_id.is_empty() && h.p_with < h.p_without - 1e-3 => {
-            Some(PlugInCandidate {
-                p_without: h.p_without,
-                p_with: h.p_with,
-                heater_w: domain.aids.block_heater_w,
-                plug_in_s: h.plug_in_s,
-                margin_without_k: h.margin_without_k,
-            })
-        }
+        Some(h) if !night.depot_id.is_empty() => Some(PlugInCandidate {
+            p_without: h.p_without,
+            p_with: h.p_with,
+            heater_w: domain.aids.block_heater_w,
+            plug_in_s: h.plug_in_s,
+            margin_without_k: h.margin_without_k,
+        }),
         _ => None,
     };
     let a = &d.assessment;
@@ -1031,9 +1028,12 @@ pub fn plan_to_pb(
     let coldest = plug_in_plan::coldest_first(candidates, limits);
     pb::PlugInPlan {
         depot_id: depot_id.to_string(),
+        // An outlet left to a heater that cannot lower the probability changes no total: such a
+        // vehicle is not listed as a plug-in.
         plug_ins: plan
             .chosen
             .iter()
+            .filter(|&&i| candidates[i].p_with < candidates[i].p_without - 1e-3)
             .map(|&i| pb::PlannedPlugIn {
                 vehicle_id: vehicles[i].clone(),
                 plug_in_at: Some(timestamp(candidates[i].plug_in_s)),
