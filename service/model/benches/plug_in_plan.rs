@@ -34,11 +34,7 @@ fn depot(n: usize, key: u64) -> Vec<PlugInCandidate> {
 fn benches(c: &mut Criterion) {
     let mut g = c.benchmark_group("plug_in_plan");
     g.sample_size(10);
-    for (n, outlets, limit_w) in [
-        (1_500, 100, 1.0e6),
-        (1_500, 100, 1.0e5),
-        (500, 100, 1.0e6),
-    ] {
+    for (n, outlets, limit_w) in [(1_500, 100, 1.0e6), (1_500, 100, 1.0e5), (500, 100, 1.0e6)] {
         let candidates = depot(n, 11);
         let limits = DepotLimits {
             outlets,
