@@ -302,7 +302,9 @@ impl Run {
         // The sweep is −dV/dθ (dV/dθ < 0 while compressing); the smaller of the two nodes decides.
         let sweep_m3_per_rad = (-node_mid.dv_m3_per_rad).min(-node_end.dv_m3_per_rad);
         // NaN counts as held: refining is always safe.
-        !(outflow_m3_per_rad < sweep_m3_per_rad)
+        outflow_m3_per_rad >= sweep_m3_per_rad
+            || outflow_m3_per_rad.is_nan()
+            || sweep_m3_per_rad.is_nan()
     }
 
     /// Heat-transfer coefficient from the factored form (fast path), W/(m² K).
@@ -611,7 +613,7 @@ fn fast_segment(
         let near_crankcase = run.leak_holds_charge(&node_mid, &node1, y.t_k) && {
             // Ideal-gas estimate: the threshold is a heuristic, the virial term is not needed.
             let p_end = y_new.m_kg * air::R_AIR_J_PER_KG_K * y_new.t_k * node1.inv_v_per_m3;
-            !(p_end > FAST_REFINE_PRESSURE_RATIO * run.crankcase_p_pa)
+            p_end.is_nan() || p_end <= FAST_REFINE_PRESSURE_RATIO * run.crankcase_p_pa
         };
         if near_crankcase || !(y_new.t_k > 0.0 && y_new.m_kg > 0.0) {
             taken += FAST_REFINE_SUBSTEPS;
