@@ -139,22 +139,31 @@ fn by_benefit(items: &mut [Item]) {
     items.sort_by(|a, b| b.benefit.total_cmp(&a.benefit).then(a.index.cmp(&b.index)));
 }
 
+/// The `n` items of largest benefit (ties to the earlier candidate), by selection (no full sort;
+/// `finish` puts the indices in input order).
+fn largest_benefits(mut items: Vec<Item>, n: usize) -> Vec<usize> {
+    let order = |a: &Item, b: &Item| b.benefit.total_cmp(&a.benefit).then(a.index.cmp(&b.index));
+    if n == 0 {
+        return Vec::new();
+    }
+    if n < items.len() {
+        items.select_nth_unstable_by(n - 1, order);
+        items.truncate(n);
+    }
+    indices(&items)
+}
+
 /// Chooses the vehicles to plug in.
 pub fn plan(c: &[PlugInCandidate], limits: &DepotLimits) -> PlugInPlan {
     let n_out = (limits.outlets as usize).min(c.len());
     let Some(limit_w) = limits.circuit_limit_w else {
-        let mut items: Vec<Item> = useful(c, |_| Some(0));
-        by_benefit(&mut items);
-        items.truncate(n_out);
-        return finish(c, indices(&items), PlanMethod::Exact, 0.0);
+        let items = useful(c, |_| Some(0));
+        return finish(c, largest_benefits(items, n_out), PlanMethod::Exact, 0.0);
     };
     let cap = capacity_units(limit_w);
     let items = useful(c, |x| units(x.heater_w));
     if circuit_cannot_bind(&items, n_out, cap) {
-        let mut items = items;
-        by_benefit(&mut items);
-        items.truncate(n_out);
-        return finish(c, indices(&items), PlanMethod::Exact, 0.0);
+        return finish(c, largest_benefits(items, n_out), PlanMethod::Exact, 0.0);
     }
     if let Some(chosen) = knapsack(&items, n_out, cap) {
         return finish(c, chosen, PlanMethod::Exact, 0.0);
