@@ -52,6 +52,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             .out_dir(&json_dir)
             // Stops prost's own mapping to prost-types, so that pbjson-types can take its place.
             .compile_well_known_types(true)
+            // pbjson-types writes Timestamps with a +00:00 offset; the mapping wants Z.
+            .extern_path(".google.protobuf.Timestamp", "crate::json::wkt::Timestamp")
             .extern_path(".google.protobuf", "::pbjson_types")
             .compile_fds(descriptors)?;
         pbjson_build::Builder::new()

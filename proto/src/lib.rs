@@ -55,6 +55,45 @@ pub mod json {
 
     pub use startmargin::v1;
 
+    /// Well-known types whose pbjson-types form strays from the mapping.
+    pub mod wkt {
+        use chrono::{DateTime, SecondsFormat, Utc};
+
+        /// `google.protobuf.Timestamp` in JSON as RFC 3339 in UTC with a `Z` and 0, 3, 6 or 9
+        /// fractional digits, as the mapping prescribes (pbjson-types writes `+00:00`); reads any
+        /// RFC 3339 offset.
+        #[derive(Clone, Copy, PartialEq, Eq, Hash, ::prost::Message)]
+        pub struct Timestamp {
+            /// Seconds since the Unix epoch.
+            #[prost(int64, tag = "1")]
+            pub seconds: i64,
+            /// Fraction of the second, nanoseconds.
+            #[prost(int32, tag = "2")]
+            pub nanos: i32,
+        }
+
+        impl serde::Serialize for Timestamp {
+            fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+                let nanos = u32::try_from(self.nanos)
+                    .map_err(|_| serde::ser::Error::custom("negative nanos in a Timestamp"))?;
+                let t = DateTime::<Utc>::from_timestamp(self.seconds, nanos)
+                    .ok_or_else(|| serde::ser::Error::custom("Timestamp out of range"))?;
+                serializer.serialize_str(&t.to_rfc3339_opts(SecondsFormat::AutoSi, true))
+            }
+        }
+
+        impl<'de> serde::Deserialize<'de> for Timestamp {
+            fn deserialize<D: serde::Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+                let text = <std::borrow::Cow<'de, str>>::deserialize(deserializer)?;
+                let t = DateTime::parse_from_rfc3339(&text).map_err(serde::de::Error::custom)?;
+                Ok(Self {
+                    seconds: t.timestamp(),
+                    nanos: t.timestamp_subsec_nanos() as i32,
+                })
+            }
+        }
+    }
+
     /// The JSON twin `T` of a message `m` of the same protobuf type, through its wire encoding
     /// (both are generated from one descriptor, so this cannot lose a field).
     pub fn from_message<T: prost::Message + Default>(

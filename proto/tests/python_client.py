@@ -101,6 +101,29 @@ check(
     and unpacked.field_violations[0].field == "night.vehicle.battery.capacity_cca",
 )
 
+# The demos' JSON lines are canonical proto3 JSON: Google's own json_format reads the reference
+# lines (written by the Rust tests in demo-clients/tests/json_lines.rs) into the generated messages
+# and prints them back to the same JSON.
+import json  # noqa: E402
+
+from google.protobuf import json_format  # noqa: E402
+
+watch_pb2 = importlib.import_module("startmargin.v1.watch_pb2")
+data = PROTO_ROOT.parent / "demo-clients" / "tests" / "data"
+for name, message_type in (
+    ("fleet_responses.jsonl", service_pb2.AssessFleetResponse),
+    ("alerts.jsonl", watch_pb2.Alert),
+):
+    lines = (data / name).read_text().splitlines()
+    for i, line in enumerate(lines):
+        try:
+            message = json_format.Parse(line, message_type())
+            again = json_format.MessageToDict(message)
+            check(f"{name} line {i + 1} parses and prints back the same", again == json.loads(line), json.dumps(again))
+        except json_format.ParseError as e:
+            check(f"{name} line {i + 1} parses", False, str(e))
+    check(f"{name} has lines", len(lines) > 0)
+
 passed = sum(results)
 failed = len(results) - passed
 print(f"python-client: {passed} passed, {failed} failed")
