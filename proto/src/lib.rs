@@ -102,3 +102,68 @@ pub mod json {
         T::decode(m.encode_to_vec().as_slice())
     }
 }
+
+#[cfg(all(test, feature = "json"))]
+mod json_tests {
+    use super::json::{self, wkt::Timestamp};
+
+    fn to_json<T: serde::Serialize>(v: &T) -> String {
+        serde_json::to_string(v).expect("serialises")
+    }
+
+    #[test]
+    fn timestamps_are_z_normalised_with_0_3_6_or_9_digits() {
+        // Values as the proto3 JSON mapping prescribes (protobuf's JSON documentation).
+        let at = |seconds, nanos| to_json(&Timestamp { seconds, nanos });
+        assert_eq!(at(1_736_915_400, 0), r#""2025-01-15T04:30:00Z""#);
+        assert_eq!(
+            at(1_736_915_400, 10_000_000),
+            r#""2025-01-15T04:30:00.010Z""#
+        );
+        assert_eq!(
+            at(1_736_915_400, 10_000),
+            r#""2025-01-15T04:30:00.000010Z""#
+        );
+        assert_eq!(at(1_736_915_400, 1), r#""2025-01-15T04:30:00.000000001Z""#);
+        assert_eq!(at(0, 0), r#""1970-01-01T00:00:00Z""#);
+        // Any offset reads back to the same instant.
+        let back: Timestamp =
+            serde_json::from_str(r#""2025-01-14T22:30:00-06:00""#).expect("parses");
+        assert_eq!(
+            back,
+            Timestamp {
+                seconds: 1_736_915_400,
+                nanos: 0
+            }
+        );
+        assert!(serde_json::from_str::<Timestamp>(r#""yesterday""#).is_err());
+        assert!(serde_json::from_str::<Timestamp>("12").is_err());
+        assert!(
+            serde_json::to_string(&Timestamp {
+                seconds: 0,
+                nanos: -1
+            })
+            .is_err()
+        );
+    }
+
+    #[test]
+    fn messages_use_the_mapping() {
+        let forecast = json::v1::Forecast {
+            step: Some(pbjson_types::Duration {
+                seconds: 1,
+                nanos: 500_000_000,
+            }),
+            ..Default::default()
+        };
+        let text = to_json(&forecast);
+        assert!(text.contains(r#""step":"1.500s""#), "{text}");
+        let back: json::v1::Forecast = serde_json::from_str(&text).expect("parses");
+        assert_eq!(back, forecast);
+        // Enum values by name; unknown names refused.
+        let outlook: json::v1::StartOutlook =
+            serde_json::from_str(r#""START_OUTLOOK_AT_RISK""#).expect("parses");
+        assert_eq!(outlook, json::v1::StartOutlook::AtRisk);
+        assert!(serde_json::from_str::<json::v1::StartOutlook>(r#""AT_RISK_SOON""#).is_err());
+    }
+}
