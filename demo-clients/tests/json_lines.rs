@@ -119,6 +119,7 @@ fn fixed_responses() -> Vec<api::AssessFleetResponse> {
             act_by: at(1_736_903_400),
             energy_kwh: 4.0,
             caution: "Outdoor-rated cord, fully uncoiled, ground-fault protected.".into(),
+            ..Default::default()
         }],
         margin_path: vec![
             api::MarginPoint {
