@@ -28,9 +28,10 @@ use tokio::sync::oneshot;
 use tokio::time::Instant;
 use tokio_stream::Stream;
 use tokio_util::sync::CancellationToken;
-use tonic::{Request, Status, Streaming};
+use tonic::{Request, Status};
 use tracing::{Instrument, debug, info, info_span};
 
+use crate::codec::Inbound;
 use crate::convert::{self, MAX_ID_LEN, ZoneForecasts};
 use crate::error::{ApiError, FieldViolation, to_rpc_status};
 use crate::metrics;
@@ -52,6 +53,8 @@ pub type WatchResponses =
 
 /// Alert kinds a vehicle can hold at once.
 const KINDS: usize = 2;
+/// Tag of `WatchFleetRequest.sequence`, read from an undecodable update to name it.
+const SEQUENCE_TAG: u32 = 6;
 /// Fewest vehicles per part of a parallel re-score.
 const MIN_PART: usize = 16;
 
@@ -61,7 +64,7 @@ pub const DRAINING_MESSAGE: &str = "server is draining";
 /// Starts a WatchFleet stream: its state lives in a task that reads the input; the returned
 /// stream carries the events.
 pub fn start(
-    request: Request<Streaming<pb::WatchFleetRequest>>,
+    request: Request<Inbound<pb::WatchFleetRequest>>,
     submit: Submit,
     settings: WatchSettings,
     draining: CancellationToken,
@@ -186,7 +189,7 @@ type Refusal = (String, ApiError);
 impl WatchStream {
     async fn run(
         mut self,
-        mut inbound: Streaming<pb::WatchFleetRequest>,
+        mut inbound: Inbound<pb::WatchFleetRequest>,
         draining: CancellationToken,
     ) {
         let mut bucket = Bucket::new(self.settings.max_updates_per_s);
@@ -212,9 +215,15 @@ impl WatchStream {
                 m = inbound.message() => m,
             };
             match message {
-                Ok(Some(request)) => {
+                Ok(Some(Ok(request))) => {
                     updates += 1;
                     self.handle(request).await;
+                }
+                Ok(Some(Err(bad))) => {
+                    // Undecodable or over-size: refused under the sequence it carries, if readable.
+                    updates += 1;
+                    let seq = bad.varint_field(SEQUENCE_TAG).unwrap_or_default();
+                    self.refuse(seq, String::new(), bad.error, Vec::new());
                 }
                 Ok(None) => break None,
                 Err(status) => break Some(status),
