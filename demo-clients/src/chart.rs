@@ -7,6 +7,7 @@ use startmargin_sdk::VehicleAssessment;
 use startmargin_sdk::time::unix_s;
 
 use crate::scenario::{DepotVehicle, Scenario, UTC_OFFSET_S, local_hhmm};
+use crate::style::{self, draw_marker};
 use crate::svg::{Anchor, Linear, Stroke, Svg, nice_ticks};
 use crate::table::gel_words;
 
@@ -17,16 +18,6 @@ pub struct Assessed<'a> {
     pub vehicle: &'a DepotVehicle,
     /// Its assessment.
     pub assessment: &'a VehicleAssessment,
-}
-
-/// Twelve colours that stay apart on white.
-const PALETTE: [&str; 12] = [
-    "#1f77b4", "#ff7f0e", "#2ca02c", "#d62728", "#9467bd", "#8c564b", "#e377c2", "#7f7f7f",
-    "#bcbd22", "#17becf", "#393b79", "#637939",
-];
-
-fn color(i: usize) -> &'static str {
-    PALETTE[i % PALETTE.len()]
 }
 
 fn secs(t: SystemTime) -> f64 {
@@ -79,8 +70,8 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     );
     svg.text(
         (x0, 58.0),
-        "Margin if the vehicle left at each hour (from the forecast and its key-off readings); ● = planned departure. \
-         Below 0 K the engine is not expected to fire.",
+        "Margin if the vehicle left at each hour (from the forecast and its key-off readings); the vehicle's marker \
+         sits at its planned departure. Below 0 K the engine is not expected to fire.",
         12.0,
         Anchor::Start,
         "#555",
@@ -156,14 +147,15 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
                     .map(|at| (xs.map(unix_s(at)), ys.map(m.margin_k)))
             })
             .collect();
-        svg.polyline(&pts, Stroke::solid(color(i), 2.0));
+        svg.polyline(&pts, style::series(i).stroke(2.0));
     }
     for (i, r) in rows.iter().enumerate() {
         let at = (
             xs.map(secs(r.vehicle.departure)),
             ys.map(r.assessment.start_margin_k),
         );
-        svg.circle(at, 5.5, color(i), Stroke::solid("white", 1.5));
+        let st = style::series(i);
+        draw_marker(&mut svg, st.marker, at, 11.0, st.color);
     }
 
     svg.text(
@@ -191,20 +183,13 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     );
     for (i, r) in rows.iter().enumerate() {
         let y = y0 + 30.0 + i as f64 * 36.0;
-        svg.line(
-            (lx, y - 4.0),
-            (lx + 22.0, y - 4.0),
-            Stroke::solid(color(i), 3.0),
-        );
-        svg.circle(
-            (lx + 11.0, y - 4.0),
-            4.0,
-            color(i),
-            Stroke::solid("white", 1.0),
-        );
-        svg.bold((lx + 30.0, y), r.vehicle.id(), 12.0, Anchor::Start);
+        // The same line, dash and marker as in the plot.
+        let st = style::series(i);
+        svg.line((lx - 4.0, y - 4.0), (lx + 26.0, y - 4.0), st.stroke(2.0));
+        draw_marker(&mut svg, st.marker, (lx + 11.0, y - 4.0), 10.0, st.color);
+        svg.bold((lx + 34.0, y), r.vehicle.id(), 12.0, Anchor::Start);
         svg.text(
-            (lx + 30.0, y + 14.0),
+            (lx + 34.0, y + 14.0),
             &format!(
                 "{} · {} · {}{}",
                 r.vehicle.archetype,
@@ -223,6 +208,39 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     }
     svg.finish()
 }
+
+// The fuel chart's lines, shared by its legend and its panels so that the two cannot disagree.
+// Tank and filter part by lightness and dash as well as hue; the limits by dash pattern.
+/// Tank temperature: dark blue, solid.
+const TANK: Stroke<'static> = Stroke {
+    color: style::PALETTE[0],
+    width_px: 2.0,
+    dash: None,
+};
+/// Filter temperature: mid orange, dashed.
+const FILTER: Stroke<'static> = Stroke {
+    color: style::PALETTE[1],
+    width_px: 2.0,
+    dash: Some("7 3"),
+};
+/// Cloud point: ochre, short dashes.
+const CLOUD_POINT: Stroke<'static> = Stroke {
+    color: "#9a7400",
+    width_px: 1.4,
+    dash: Some("4 3"),
+};
+/// CFPP: deep red, dash-dot.
+const CFPP: Stroke<'static> = Stroke {
+    color: "#a3231b",
+    width_px: 1.4,
+    dash: Some("10 3 2 3"),
+};
+/// Departure: dark grey, dotted (round dots).
+const DEPARTURE: Stroke<'static> = Stroke {
+    color: "#333333",
+    width_px: 1.8,
+    dash: Some("0.1 4"),
+};
 
 /// Fuel temperatures through the night against cloud point and CFPP: one panel per vehicle with
 /// the tank and filter paths, the bands where wax forms (below cloud point) and where the filter
@@ -247,8 +265,8 @@ pub fn fuel_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     );
     svg.text(
         (left, 56.0),
-        "Tank and filter temperature through the night (°C). Shaded bands under the legend's lines: \
-         below cloud point (wax forms), below CFPP (the filter plugs). Dashed line: departure.",
+        "Tank and filter temperature through the night (°C). Shaded bands: below cloud point (wax forms), \
+         below CFPP (the filter plugs). Dotted vertical line: departure.",
         12.0,
         Anchor::Start,
         "#555",
@@ -256,11 +274,11 @@ pub fn fuel_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     // Legend.
     let ly = 84.0;
     let items: [(&str, Stroke<'_>); 5] = [
-        ("tank", Stroke::solid("#1565c0", 2.0)),
-        ("filter", Stroke::solid("#6a1b9a", 2.0)),
-        ("cloud point", Stroke::dashed("#e0a800", 1.5, "5 3")),
-        ("CFPP", Stroke::dashed("#c62828", 1.5, "5 3")),
-        ("departure", Stroke::dashed("#555", 1.2, "3 3")),
+        ("tank", TANK),
+        ("filter", FILTER),
+        ("cloud point", CLOUD_POINT),
+        ("CFPP", CFPP),
+        ("departure", DEPARTURE),
     ];
     let mut lx = left;
     for (label, stroke) in items {
@@ -334,23 +352,19 @@ pub fn fuel_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
         svg.line(
             (px, ys.map(g.cloud_point_c)),
             (px + pw, ys.map(g.cloud_point_c)),
-            Stroke::dashed("#e0a800", 1.3, "5 3"),
+            CLOUD_POINT,
         );
-        svg.line(
-            (px, ys.map(g.cfpp_c)),
-            (px + pw, ys.map(g.cfpp_c)),
-            Stroke::dashed("#c62828", 1.3, "5 3"),
-        );
+        svg.line((px, ys.map(g.cfpp_c)), (px + pw, ys.map(g.cfpp_c)), CFPP);
         let dx = xs.map(secs(r.vehicle.departure));
-        svg.line((dx, py), (dx, py + ph), Stroke::dashed("#555", 1.2, "3 3"));
+        svg.line((dx, py), (dx, py + ph), DEPARTURE);
         let path = |f: fn(&startmargin_sdk::api::FuelTemperaturePoint) -> f64| -> Vec<(f64, f64)> {
             g.path
                 .iter()
                 .filter_map(|p| p.at.as_ref().map(|at| (xs.map(unix_s(at)), ys.map(f(p)))))
                 .collect()
         };
-        svg.polyline(&path(|p| p.tank_c), Stroke::solid("#1565c0", 1.8));
-        svg.polyline(&path(|p| p.filter_c), Stroke::solid("#6a1b9a", 1.8));
+        svg.polyline(&path(|p| p.tank_c), TANK);
+        svg.polyline(&path(|p| p.filter_c), FILTER);
         svg.rect((px, py), (pw, ph), "none", Some(Stroke::solid("#999", 1.0)));
 
         svg.bold(
@@ -439,8 +453,15 @@ mod tests {
             .collect();
         let m = margin_chart(&s, &rows);
         assert_eq!(m.matches("<polyline").count(), 12);
-        // A departure marker per vehicle and one per legend entry.
-        assert_eq!(m.matches("<circle").count(), 24);
+        // A departure marker per vehicle and one per legend entry, in six shapes.
+        assert_eq!(
+            m.matches("<circle").count() + m.matches("<polygon").count(),
+            24
+        );
+        assert_eq!(m.matches("<circle").count(), 4, "two circle series");
+        assert!(m.contains("planned departure"));
+        // The fuel legend names the departure's pattern as it is drawn: dotted.
+        assert!(f_legend_says_dotted(&fuel_chart(&s, &rows)));
         assert!(m.contains(">PL-01<") && m.contains(">DT-12<"));
         assert!(m.contains("below 0 K"));
         let f = fuel_chart(&s, &rows);
@@ -451,6 +472,12 @@ mod tests {
         );
         assert!(f.contains("CP -12 / CFPP -20 · low"));
         assert!(f.trim_end().ends_with("</svg>"));
+    }
+
+    fn f_legend_says_dotted(f: &str) -> bool {
+        f.contains("Dotted vertical line: departure")
+            && !f.contains("Dashed line: departure")
+            && f.contains(r#"stroke-dasharray="0.1 4""#)
     }
 
     #[test]

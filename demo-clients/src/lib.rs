@@ -7,5 +7,6 @@ pub mod console;
 pub mod report;
 pub mod run;
 pub mod scenario;
+pub mod style;
 pub mod svg;
 pub mod table;

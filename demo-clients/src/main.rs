@@ -68,10 +68,16 @@ async fn run(args: Args) -> anyhow::Result<ExitCode> {
         .collect();
     if args.json {
         for r in &rows {
-            println!("{}", report::json_line(r.vehicle, r.outcome));
+            println!(
+                "{}",
+                report::json_line(&report::vehicle_response(r.vehicle, r.outcome))?
+            );
         }
-        for plan in &fleet.plans {
-            println!("{}", report::plan_line(plan));
+        for (item_id, plan) in fleet.plan_item_ids.iter().zip(&fleet.plans) {
+            println!(
+                "{}",
+                report::json_line(&report::plan_response(item_id, plan))?
+            );
         }
     } else {
         print!("{}", console::evening_text(&scenario, &rows));

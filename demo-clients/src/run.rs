@@ -16,6 +16,8 @@ pub struct FleetRun {
     pub vehicles: Vec<Outcome>,
     /// The depots' plug-in plans.
     pub plans: Vec<PlugInPlan>,
+    /// The item id each plan came with, in the same order.
+    pub plan_item_ids: Vec<String>,
 }
 
 /// Sends the zone forecast, the depot's outlets and every vehicle on one `AssessFleet` stream and
@@ -24,6 +26,7 @@ pub struct FleetRun {
 pub async fn assess_fleet(client: &Client, scenario: &Scenario) -> anyhow::Result<FleetRun> {
     let mut outcomes: Vec<Option<Outcome>> = scenario.vehicles.iter().map(|_| None).collect();
     let mut plans = Vec::new();
+    let mut plan_item_ids = Vec::new();
     let mut results = client.assess_fleet(tokio_stream::iter(scenario.fleet_items()));
     while let Some(result) = results.next().await {
         let result = result.context("the fleet stream failed")?;
@@ -32,7 +35,10 @@ pub async fn assess_fleet(client: &Client, scenario: &Scenario) -> anyhow::Resul
             .iter()
             .position(|v| v.id() == result.vehicle_id);
         match (slot, result.outcome) {
-            (_, Ok(FleetOutcome::PlugInPlan(plan))) => plans.push(plan),
+            (_, Ok(FleetOutcome::PlugInPlan(plan))) => {
+                plans.push(plan);
+                plan_item_ids.push(result.item_id);
+            }
             (Some(i), Ok(FleetOutcome::Assessment(a))) => outcomes[i] = Some(Ok(a)),
             (Some(i), Err(e)) => outcomes[i] = Some(Err(e)),
             // The zone forecast and the depot outlets are not vehicles: an error there is fatal.
@@ -47,5 +53,9 @@ pub async fn assess_fleet(client: &Client, scenario: &Scenario) -> anyhow::Resul
         .zip(&scenario.vehicles)
         .map(|(o, v)| o.with_context(|| format!("no result for {}", v.id())))
         .collect::<anyhow::Result<_>>()?;
-    Ok(FleetRun { vehicles, plans })
+    Ok(FleetRun {
+        vehicles,
+        plans,
+        plan_item_ids,
+    })
 }

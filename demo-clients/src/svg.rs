@@ -39,7 +39,8 @@ impl<'a> Stroke<'a> {
             self.color, self.width_px
         );
         if let Some(d) = self.dash {
-            let _ = write!(s, r#" stroke-dasharray="{d}""#);
+            // Round caps, so that a dot pattern ("0.1 4") draws round dots.
+            let _ = write!(s, r#" stroke-dasharray="{d}" stroke-linecap="round""#);
         }
         s
     }
@@ -130,6 +131,20 @@ impl Svg {
         let _ = writeln!(
             self.buf,
             r#"<circle cx="{cx:.1}" cy="{cy:.1}" r="{r}" fill="{fill}" {}/>"#,
+            stroke.attrs()
+        );
+    }
+
+    /// A filled closed polygon through the points.
+    pub fn polygon(&mut self, points: &[(f64, f64)], fill: &str, stroke: Stroke<'_>) {
+        let pts: Vec<String> = points
+            .iter()
+            .map(|(x, y)| format!("{x:.1},{y:.1}"))
+            .collect();
+        let _ = writeln!(
+            self.buf,
+            r#"<polygon stroke-linejoin="round" points="{}" fill="{fill}" {}/>"#,
+            pts.join(" "),
             stroke.attrs()
         );
     }

@@ -32,6 +32,8 @@ pub struct Column {
     pub align: Align,
     /// Cell text of a row.
     pub cell: fn(&Row<'_>) -> String,
+    /// Widest line of the column, characters; longer text wraps onto more lines of the row.
+    pub wrap_at: Option<usize>,
 }
 
 /// Cell text from the assessment, or `on_error` when the vehicle failed.
@@ -91,15 +93,34 @@ pub fn first_action(a: &VehicleAssessment) -> String {
         .map_or_else(|| "—".to_string(), |x| x.summary.clone())
 }
 
-/// Cuts `s` to at most `max` characters, marking the cut with "…".
-pub fn clip(s: &str, max: usize) -> String {
-    if s.chars().count() <= max {
-        s.to_string()
-    } else {
-        let mut out: String = s.chars().take(max.saturating_sub(1)).collect();
-        out.push('…');
-        out
+/// Breaks `s` into lines of at most `width` characters at spaces, keeping every word (a word
+/// longer than `width` is split); never cuts text off.
+pub fn wrap(s: &str, width: usize) -> Vec<String> {
+    let width = width.max(1);
+    let mut lines = Vec::new();
+    let mut line = String::new();
+    for word in s.split_whitespace() {
+        let mut word: Vec<char> = word.chars().collect();
+        while word.len() > width {
+            if !line.is_empty() {
+                lines.push(std::mem::take(&mut line));
+            }
+            lines.push(word.drain(..width).collect());
+        }
+        let word: String = word.into_iter().collect();
+        let needed = line.chars().count() + usize::from(!line.is_empty()) + word.chars().count();
+        if !line.is_empty() && needed > width {
+            lines.push(std::mem::take(&mut line));
+        }
+        if !line.is_empty() {
+            line.push(' ');
+        }
+        line.push_str(&word);
     }
+    if !line.is_empty() || lines.is_empty() {
+        lines.push(line);
+    }
+    lines
 }
 
 /// The default columns of the evening table.
@@ -109,21 +130,25 @@ pub fn default_columns() -> Vec<Column> {
             header: "vehicle",
             align: Align::Left,
             cell: |r| r.vehicle.id().to_string(),
+            wrap_at: None,
         },
         Column {
             header: "archetype",
             align: Align::Left,
             cell: |r| r.vehicle.archetype.to_string(),
+            wrap_at: None,
         },
         Column {
             header: "departs",
             align: Align::Left,
             cell: |r| local_hhmm(r.vehicle.departure),
+            wrap_at: None,
         },
         Column {
             header: "binding margin",
             align: Align::Right,
             cell: |r| ok_or(r, "error", binding_margin),
+            wrap_at: None,
         },
         Column {
             header: "start expected",
@@ -133,11 +158,13 @@ pub fn default_columns() -> Vec<Column> {
                     if a.start_expected { "yes" } else { "NO" }.into()
                 })
             },
+            wrap_at: None,
         },
         Column {
             header: "no-start %",
             align: Align::Right,
             cell: |r| ok_or(r, "—", |a| format!("{:.1}", a.no_start_pct)),
+            wrap_at: None,
         },
         Column {
             header: "outlook",
@@ -147,11 +174,13 @@ pub fn default_columns() -> Vec<Column> {
                     words(a.outlook().as_str_name(), "START_OUTLOOK_")
                 })
             },
+            wrap_at: None,
         },
         Column {
             header: "gel level",
             align: Align::Left,
             cell: |r| ok_or(r, "—", gel_words),
+            wrap_at: None,
         },
         Column {
             header: "limiting factor",
@@ -162,23 +191,37 @@ pub fn default_columns() -> Vec<Column> {
                     _ => limiting_words(a),
                 })
             },
+            wrap_at: None,
         },
         Column {
             header: "first action",
             align: Align::Left,
             cell: |r| match r.outcome {
-                Ok(a) => clip(&first_action(a), 48),
-                Err(e) => clip(&format!("error: {e}"), 48),
+                Ok(a) => first_action(a),
+                Err(e) => format!("error: {e}"),
             },
+            wrap_at: Some(48),
         },
     ]
 }
 
-/// Renders rows as a plain-text table with a header rule.
+/// Renders rows as a plain-text table with a header rule; a cell longer than its column's
+/// `wrap_at` continues on the following lines of its row.
 pub fn render(rows: &[Row<'_>], columns: &[Column]) -> String {
-    let cells: Vec<Vec<String>> = rows
+    let cells: Vec<Vec<Vec<String>>> = rows
         .iter()
-        .map(|r| columns.iter().map(|c| (c.cell)(r)).collect())
+        .map(|r| {
+            columns
+                .iter()
+                .map(|c| {
+                    let text = (c.cell)(r);
+                    match c.wrap_at {
+                        Some(width) => wrap(&text, width),
+                        None => vec![text],
+                    }
+                })
+                .collect()
+        })
         .collect();
     let widths: Vec<usize> = columns
         .iter()
@@ -186,7 +229,7 @@ pub fn render(rows: &[Row<'_>], columns: &[Column]) -> String {
         .map(|(i, c)| {
             cells
                 .iter()
-                .map(|row| row[i].chars().count())
+                .flat_map(|row| row[i].iter().map(|l| l.chars().count()))
                 .chain([c.header.chars().count()])
                 .max()
                 .unwrap_or(0)
@@ -212,8 +255,15 @@ pub fn render(rows: &[Row<'_>], columns: &[Column]) -> String {
     out.push_str(&"-".repeat(widths.iter().sum::<usize>() + 2 * (widths.len() - 1)));
     out.push('\n');
     for row in &cells {
-        out.push_str(&line(row.iter().map(String::as_str).collect()));
-        out.push('\n');
+        let height = row.iter().map(Vec::len).max().unwrap_or(1);
+        for k in 0..height {
+            out.push_str(&line(
+                row.iter()
+                    .map(|cell| cell.get(k).map_or("", String::as_str))
+                    .collect(),
+            ));
+            out.push('\n');
+        }
     }
     out
 }
@@ -237,9 +287,16 @@ mod tests {
     }
 
     #[test]
-    fn clip_marks_the_cut() {
-        assert_eq!(clip("abcdef", 6), "abcdef");
-        assert_eq!(clip("abcdefg", 6), "abcde…");
+    fn wrap_keeps_every_word() {
+        assert_eq!(wrap("abcdef", 6), ["abcdef"]);
+        assert_eq!(wrap("abc def ghi", 7), ["abc def", "ghi"]);
+        assert_eq!(wrap("abcdefghij", 4), ["abcd", "efgh", "ij"]);
+        assert_eq!(wrap("", 4), [""]);
+        let text =
+            "Blend No. 1 diesel or kerosene in before the fuel clouds: the only effective way";
+        let lines = wrap(text, 20);
+        assert!(lines.iter().all(|l| l.chars().count() <= 20), "{lines:?}");
+        assert_eq!(lines.join(" "), text);
     }
 
     #[test]
@@ -288,5 +345,38 @@ mod tests {
         // The margin column is right-aligned: both cells end at the same character column.
         let end = |l: &str, pat: &str| l.find(pat).map(|i| l[..i + pat.len()].chars().count());
         assert_eq!(end(lines[0], "binding margin"), end(lines[3], "error"));
+    }
+
+    #[test]
+    fn long_first_actions_wrap_instead_of_being_cut() {
+        let s = evening_cold_front().unwrap();
+        let summary = "Blend No. 1 diesel or kerosene in before the fuel clouds: the only \
+                       effective way to lower the cloud point (about 1-2 K per 10 %).";
+        let ok: Result<VehicleAssessment, Error> = Ok(VehicleAssessment {
+            actions: vec![api::Action {
+                summary: summary.into(),
+                ..Default::default()
+            }],
+            ..Default::default()
+        });
+        let rows = [Row {
+            vehicle: &s.vehicles[0],
+            outcome: &ok,
+        }];
+        let text = render(&rows, &default_columns());
+        assert!(!text.contains('…'), "{text}");
+        let lines: Vec<&str> = text.lines().skip(2).collect();
+        assert!(lines.len() >= 3, "{text}");
+        // The continuation lines start in the action's column, the other columns left blank.
+        let column = lines[0].find("Blend").unwrap();
+        let words: Vec<&str> = lines
+            .iter()
+            .map(|l| {
+                assert!(l[..column].trim().is_empty() || l == &lines[0], "{text}");
+                l[column..].trim()
+            })
+            .collect();
+        assert_eq!(words.join(" "), summary);
+        assert!(words.iter().all(|w| w.chars().count() <= 48));
     }
 }

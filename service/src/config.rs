@@ -172,6 +172,45 @@ impl Default for Config {
     }
 }
 
+/// The names among `names` shaped like the variables Kubernetes injects for a Service named
+/// `startmargin` or `startmargin-…` (`STARTMARGIN_PORT=tcp://…`, `STARTMARGIN_PORT_50051_TCP…`,
+/// `STARTMARGIN_SERVICE_HOST`, `STARTMARGIN_SERVICE_PORT…`, and the same after a name infix such as
+/// `STARTMARGIN_GRPC_`), sorted. No configuration key has these shapes.
+pub fn service_link_vars(names: impl IntoIterator<Item = String>) -> Vec<String> {
+    let is_link = |rest: &str| {
+        // Parts after the prefix; a link's marker (SERVICE_HOST, SERVICE_PORT, PORT) may follow
+        // a Service-name infix of any number of parts.
+        let parts: Vec<&str> = rest.split('_').collect();
+        parts.iter().enumerate().any(|(i, part)| {
+            let after = &parts[i + 1..];
+            match *part {
+                "SERVICE" => {
+                    matches!(after.first(), Some(&"HOST") if after.len() == 1)
+                        || after.first() == Some(&"PORT")
+                }
+                // PORT alone, or PORT_<number>_<protocol>[_PROTO|_PORT|_ADDR].
+                "PORT" => {
+                    after.is_empty()
+                        || (after.len() >= 2
+                            && !after[0].is_empty()
+                            && after[0].bytes().all(|b| b.is_ascii_digit())
+                            && matches!(after[1], "TCP" | "UDP" | "SCTP")
+                            && (after.len() == 2
+                                || (after.len() == 3
+                                    && matches!(after[2], "PROTO" | "PORT" | "ADDR"))))
+                }
+                _ => false,
+            }
+        })
+    };
+    let mut links: Vec<String> = names
+        .into_iter()
+        .filter(|name| name.strip_prefix(ENV_PREFIX).is_some_and(is_link))
+        .collect();
+    links.sort();
+    links
+}
+
 /// Why the configuration could not be loaded or is not valid.
 #[derive(Debug, thiserror::Error)]
 pub enum ConfigError {
@@ -181,6 +220,15 @@ pub enum ConfigError {
     /// A layer could not be read or has a key of the wrong type or an unknown key.
     #[error("cannot load the configuration: {0}")]
     Load(#[from] Box<figment::Error>),
+    /// Variables that Kubernetes injects for a Service whose name starts with `startmargin`
+    /// (service links) share our prefix but are no configuration keys.
+    #[error(
+        "environment variables {} look like Kubernetes service links of a Service named \
+         `startmargin…` (they are not configuration keys); set `enableServiceLinks: false` in the \
+         pod spec or give the Service another name",
+        .0.join(", ")
+    )]
+    ServiceLinks(Vec<String>),
     /// Values that parse but make no sense; one message per key.
     #[error("invalid configuration: {}", .0.join("; "))]
     Invalid(Vec<String>),
@@ -205,6 +253,12 @@ impl Config {
             && !path.is_file()
         {
             return Err(ConfigError::FileNotFound(path.to_path_buf()));
+        }
+        // Before figment, which would only say "unknown field: port".
+        let links =
+            service_link_vars(std::env::vars_os().filter_map(|(k, _)| k.into_string().ok()));
+        if !links.is_empty() {
+            return Err(ConfigError::ServiceLinks(links));
         }
         let config: Config = Self::figment(file).extract().map_err(Box::new)?;
         config.validate()?;
@@ -634,6 +688,52 @@ mod tests {
         };
         assert_eq!(c.metrics_addr(), None);
         assert!(!Config::default().auth_enabled());
+    }
+
+    #[test]
+    fn kubernetes_service_link_variables_are_recognised() {
+        // The variables Kubernetes injects for a Service `startmargin` with ports 50051 and 9464
+        // (named `grpc` and `metrics`), and for a Service `startmargin-grpc`.
+        let injected = [
+            "STARTMARGIN_PORT",
+            "STARTMARGIN_PORT_50051_TCP",
+            "STARTMARGIN_PORT_50051_TCP_PROTO",
+            "STARTMARGIN_PORT_50051_TCP_PORT",
+            "STARTMARGIN_PORT_50051_TCP_ADDR",
+            "STARTMARGIN_PORT_9464_TCP",
+            "STARTMARGIN_SERVICE_HOST",
+            "STARTMARGIN_SERVICE_PORT",
+            "STARTMARGIN_SERVICE_PORT_GRPC",
+            "STARTMARGIN_SERVICE_PORT_METRICS",
+            "STARTMARGIN_GRPC_SERVICE_HOST",
+            "STARTMARGIN_GRPC_PORT_50051_TCP_ADDR",
+            "STARTMARGIN_GRPC_PORT",
+        ];
+        let keys = [
+            "STARTMARGIN_LISTEN",
+            "STARTMARGIN_METRICS_LISTEN",
+            "STARTMARGIN_MAX_OPEN_STREAMS",
+            "STARTMARGIN_AUTH_TOKENS_ENV",
+            "STARTMARGIN_PORTS",
+            "STARTMARGIN_PORT_X_TCP",
+            "STARTMARGIN_PORT_50051_HTTP",
+            "STARTMARGIND_SERVICE_HOST",
+            "OTHER_SERVICE_HOST",
+        ];
+        let names = injected.iter().chain(&keys).map(|s| s.to_string());
+        let mut expected: Vec<String> = injected.iter().map(|s| s.to_string()).collect();
+        expected.sort();
+        assert_eq!(service_link_vars(names), expected);
+        // No configuration key has a service-link shape.
+        let config_keys = toml::Value::try_from(Config::default()).expect("as TOML");
+        let config_keys = config_keys.as_table().expect("a table").keys().cloned();
+        let as_env = config_keys.map(|k| format!("{ENV_PREFIX}{}", k.to_ascii_uppercase()));
+        assert!(service_link_vars(as_env).is_empty());
+        let e = ConfigError::ServiceLinks(vec!["STARTMARGIN_PORT".into()]).to_string();
+        assert!(
+            e.contains("STARTMARGIN_PORT") && e.contains("enableServiceLinks: false"),
+            "{e}"
+        );
     }
 
     #[test]

@@ -15,7 +15,11 @@ const EXIT_INVALID_CONFIG: u8 = 64;
 
 /// Overnight cold-start outlook for parked diesel vehicles, over gRPC.
 #[derive(Debug, Parser)]
-#[command(name = "startmargind", version, about)]
+#[command(
+    name = "startmargind",
+    version,
+    about = "The startmargin server: tells a fleet, the evening before, which parked diesel vehicles will not start at their planned departure, and what to do about it (gRPC API, health, reflection, metrics)."
+)]
 struct Cli {
     /// TOML configuration file; `STARTMARGIN_*` environment variables override it.
     #[arg(long, global = true, value_name = "FILE")]

@@ -1,30 +1,42 @@
-//! A tiny HTTP/1.1 responder on its own port for operations: `GET /metrics` serves
-//! [`crate::metrics::render`] in the Prometheus text format (version 0.0.4), `GET /healthz`
-//! answers 200 while serving and 503 once the server drains (for probes where gRPC health cannot be
-//! used, e.g. with TLS on the API port); anything else is 404 (405 for other methods).
+//! The operations endpoint on its own port, served by hyper's HTTP/1.1 server (already in the
+//! tree under tonic): `GET /metrics` serves [`crate::metrics::render`] in the Prometheus text
+//! format 0.0.4, `GET /healthz` answers 200 while serving and 503 once the server drains (for
+//! probes where gRPC health cannot be used, e.g. with TLS on the API port); any other path is 404,
+//! any other method 405.
 //!
-//! Bounded: at most [`MAX_CONNECTIONS`] connections at once (more are closed at once), request
-//! heads of at most [`MAX_HEAD_BYTES`], read within [`READ_TIMEOUT`]; one request per connection.
+//! Bounded so that idle or silent clients cannot starve the probes: a connection must send its
+//! request head within [`HEADER_READ_TIMEOUT`] and is closed after [`CONNECTION_TIMEOUT`] in any
+//! case; one request per connection; at most [`MAX_CONNECTIONS`] are served at once, and further
+//! ones wait in the listen backlog (they are not refused) until a slot frees, which the timeouts
+//! guarantee.
 
+use std::convert::Infallible;
 use std::net::SocketAddr;
 use std::sync::Arc;
 use std::time::Duration;
 
-use tokio::io::{AsyncReadExt as _, AsyncWriteExt as _};
-use tokio::net::{TcpListener, TcpStream};
+use http::{Method, Request, Response, StatusCode, header};
+use http_body_util::Full;
+use hyper::body::{Bytes, Incoming};
+use hyper::server::conn::http1;
+use hyper::service::service_fn;
+use hyper_util::rt::{TokioIo, TokioTimer};
+use tokio::net::TcpListener;
 use tokio::sync::Semaphore;
 use tokio::task::JoinHandle;
 use tokio_util::sync::CancellationToken;
 use tracing::{debug, info};
 
-/// Connections served at once.
-pub const MAX_CONNECTIONS: usize = 32;
-/// Longest request head accepted, bytes.
+/// Connections served at once; more wait in the backlog.
+pub const MAX_CONNECTIONS: usize = 256;
+/// Longest request head accepted, bytes (hyper's smallest read buffer; answered with 431 beyond).
 pub const MAX_HEAD_BYTES: usize = 8 * 1024;
-/// Time allowed to read a request head.
-pub const READ_TIMEOUT: Duration = Duration::from_secs(5);
+/// Time a connection has, from its accept, to send its request head.
+pub const HEADER_READ_TIMEOUT: Duration = Duration::from_secs(2);
+/// Longest life of a connection, including writing the response to a slow reader.
+pub const CONNECTION_TIMEOUT: Duration = Duration::from_secs(10);
 /// Content type of the exposition.
-pub const CONTENT_TYPE: &str = "text/plain; version=0.0.4; charset=utf-8";
+pub const CONTENT_TYPE: &str = crate::metrics::CONTENT_TYPE;
 
 /// The metrics endpoint, running until `stop` is cancelled.
 #[derive(Debug)]
@@ -45,8 +57,23 @@ pub async fn spawn(
     let addr = listener.local_addr()?;
     info!(%addr, "metrics endpoint listening");
     let slots = Arc::new(Semaphore::new(MAX_CONNECTIONS));
+    let mut builder = http1::Builder::new();
+    builder
+        .timer(TokioTimer::new())
+        .header_read_timeout(HEADER_READ_TIMEOUT)
+        .max_buf_size(MAX_HEAD_BYTES)
+        .keep_alive(false);
     let task = tokio::spawn(async move {
         loop {
+            // Take a slot before accepting, so that a full house leaves new clients queued in
+            // the backlog instead of being accepted and dropped.
+            let permit = tokio::select! {
+                () = stop.cancelled() => return,
+                permit = slots.clone().acquire_owned() => match permit {
+                    Ok(permit) => permit,
+                    Err(_) => return,
+                },
+            };
             let accepted = tokio::select! {
                 () = stop.cancelled() => return,
                 accepted = listener.accept() => accepted,
@@ -56,14 +83,19 @@ pub async fn spawn(
                 tokio::time::sleep(Duration::from_millis(50)).await;
                 continue;
             };
-            let Ok(permit) = slots.clone().try_acquire_owned() else {
-                drop(stream);
-                continue;
-            };
             let draining = draining.clone();
+            let connection = builder.serve_connection(
+                TokioIo::new(stream),
+                service_fn(move |request| {
+                    let draining = draining.is_cancelled();
+                    async move { Ok::<_, Infallible>(respond(&request, draining)) }
+                }),
+            );
             tokio::spawn(async move {
-                if let Err(e) = handle(stream, &draining).await {
-                    debug!(error = %e, "metrics connection failed");
+                match tokio::time::timeout(CONNECTION_TIMEOUT, connection).await {
+                    Ok(Ok(())) => {}
+                    Ok(Err(e)) => debug!(error = %e, "metrics connection failed"),
+                    Err(_) => debug!("metrics connection timed out"),
                 }
                 drop(permit);
             });
@@ -72,63 +104,44 @@ pub async fn spawn(
     Ok(MetricsServer { addr, task })
 }
 
-async fn handle(mut stream: TcpStream, draining: &CancellationToken) -> std::io::Result<()> {
-    let mut head = Vec::with_capacity(512);
-    let mut buf = [0_u8; 1024];
-    let read = tokio::time::timeout(READ_TIMEOUT, async {
-        loop {
-            let n = stream.read(&mut buf).await?;
-            if n == 0 {
-                return Ok::<bool, std::io::Error>(false);
-            }
-            head.extend_from_slice(&buf[..n]);
-            if head.windows(4).any(|w| w == b"\r\n\r\n") {
-                return Ok(true);
-            }
-            if head.len() > MAX_HEAD_BYTES {
-                return Ok(false);
-            }
-        }
-    })
-    .await;
-    let complete = matches!(read, Ok(Ok(true)));
-    let (status, content_type, body) = if complete {
-        respond(&head, draining.is_cancelled())
-    } else {
-        (
-            "400 Bad Request",
-            "text/plain",
-            String::from("bad request\n"),
-        )
-    };
-    let response = format!(
-        "HTTP/1.1 {status}\r\ncontent-type: {content_type}\r\ncontent-length: {}\r\nconnection: close\r\n\r\n{body}",
-        body.len()
-    );
-    stream.write_all(response.as_bytes()).await?;
-    stream.shutdown().await
+/// The response to one request.
+fn respond(request: &Request<Incoming>, draining: bool) -> Response<Full<Bytes>> {
+    route(request.method(), request.uri().path(), draining)
 }
 
-/// Status line, content type and body for a request head.
-fn respond(head: &[u8], draining: bool) -> (&'static str, &'static str, String) {
-    let line = head.split(|&b| b == b'\r').next().unwrap_or_default();
-    let line = String::from_utf8_lossy(line);
-    let mut parts = line.split(' ');
-    let (method, target) = (parts.next().unwrap_or(""), parts.next().unwrap_or(""));
-    let path = target.split('?').next().unwrap_or("");
-    match (method, path) {
-        ("GET", "/metrics") => ("200 OK", CONTENT_TYPE, crate::metrics::render()),
-        ("GET", "/healthz") if draining => {
-            ("503 Service Unavailable", "text/plain", "draining\n".into())
-        }
-        ("GET", "/healthz") => ("200 OK", "text/plain", "serving\n".into()),
-        ("GET", _) => ("404 Not Found", "text/plain", "not found\n".into()),
+/// Status, content type and body for a method and path.
+fn route(method: &Method, path: &str, draining: bool) -> Response<Full<Bytes>> {
+    let (status, content_type, body) = match (method, path) {
+        (&Method::GET, "/metrics") => (StatusCode::OK, CONTENT_TYPE, crate::metrics::render()),
+        (&Method::GET, "/healthz") if draining => (
+            StatusCode::SERVICE_UNAVAILABLE,
+            "text/plain",
+            "draining\n".into(),
+        ),
+        (&Method::GET, "/healthz") => (StatusCode::OK, "text/plain", "serving\n".into()),
+        (&Method::GET, _) => (StatusCode::NOT_FOUND, "text/plain", "not found\n".into()),
         _ => (
-            "405 Method Not Allowed",
+            StatusCode::METHOD_NOT_ALLOWED,
             "text/plain",
             "method not allowed\n".into(),
         ),
+    };
+    let mut response = Response::new(Full::new(Bytes::from(body)));
+    *response.status_mut() = status;
+    let headers = response.headers_mut();
+    headers.insert(
+        header::CONTENT_TYPE,
+        header::HeaderValue::from_static(content_type),
+    );
+    // One request per connection: say so, so that clients reading to the end do not wait.
+    headers.insert(
+        header::CONNECTION,
+        header::HeaderValue::from_static("close"),
+    );
+    if status == StatusCode::METHOD_NOT_ALLOWED {
+        headers.insert(header::ALLOW, header::HeaderValue::from_static("GET"));
     }
+    response
 }
 
 #[cfg(test)]
@@ -137,25 +150,23 @@ mod tests {
 
     #[test]
     fn routes() {
-        let (s, ct, body) = respond(b"GET /metrics HTTP/1.1\r\nhost: x\r\n\r\n", false);
-        assert_eq!(s, "200 OK");
-        assert_eq!(ct, CONTENT_TYPE);
-        assert!(body.contains("# TYPE startmargin_calls_total counter"));
+        let r = route(&Method::GET, "/metrics", false);
+        assert_eq!(r.status(), StatusCode::OK);
+        assert_eq!(r.headers()[header::CONTENT_TYPE], CONTENT_TYPE);
         assert_eq!(
-            respond(b"GET /metrics?x=1 HTTP/1.1\r\n\r\n", false).0,
-            "200 OK"
+            route(&Method::GET, "/", false).status(),
+            StatusCode::NOT_FOUND
         );
-        assert_eq!(respond(b"GET / HTTP/1.1\r\n\r\n", false).0, "404 Not Found");
-        assert_eq!(respond(b"GET /healthz HTTP/1.1\r\n\r\n", false).0, "200 OK");
-        assert!(
-            respond(b"GET /healthz HTTP/1.1\r\n\r\n", true)
-                .0
-                .starts_with("503")
+        assert_eq!(
+            route(&Method::GET, "/healthz", false).status(),
+            StatusCode::OK
         );
-        assert!(
-            respond(b"POST /metrics HTTP/1.1\r\n\r\n", false)
-                .0
-                .starts_with("405")
+        assert_eq!(
+            route(&Method::GET, "/healthz", true).status(),
+            StatusCode::SERVICE_UNAVAILABLE
         );
+        let post = route(&Method::POST, "/metrics", false);
+        assert_eq!(post.status(), StatusCode::METHOD_NOT_ALLOWED);
+        assert_eq!(post.headers()[header::ALLOW], "GET");
     }
 }

@@ -33,12 +33,24 @@ def generate_stubs():
     out = tempfile.mkdtemp(prefix="startmargin-stubs-")
     atexit.register(shutil.rmtree, out, ignore_errors=True)
     include = os.path.join(os.path.dirname(protoc.__file__), "_proto")
+    # google.rpc comes from googleapis-common-protos (its .proto files sit beside its modules), so
+    # no local google/rpc module shadows the standard one.
+    import google.rpc.status_pb2
+
+    googleapis = os.path.dirname(os.path.dirname(os.path.dirname(google.rpc.status_pb2.__file__)))
     files = [
         os.path.join("startmargin", "v1", name)
         for name in sorted(os.listdir(os.path.join(PROTO_DIR, "startmargin", "v1")))
         if name.endswith(".proto")
-    ] + [os.path.join("google", "rpc", "status.proto")]
-    args = ["protoc", f"-I{PROTO_DIR}", f"-I{include}", f"--python_out={out}", f"--grpc_python_out={out}"]
+    ]
+    args = [
+        "protoc",
+        f"-I{PROTO_DIR}",
+        f"-I{googleapis}",
+        f"-I{include}",
+        f"--python_out={out}",
+        f"--grpc_python_out={out}",
+    ]
     if protoc.main(args + files) != 0:
         raise SystemExit("grpcio-tools could not compile proto/")
     sys.path.insert(0, out)

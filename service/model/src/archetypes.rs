@@ -183,7 +183,7 @@ use CombustionSystem::{DirectInjection, Prechamber, SwirlChamber};
 pub const ARCHETYPES: &[Archetype] = &[
     Archetype {
         id: "compact-di-i4",
-        description: "Compact direct-injection inline-4, 2.0 L class (passenger car, small van)",
+        description: "Small direct-injection engine, 2 L class",
         engine: engine(84.0, 90.0, 16.5, 4, DirectInjection, 1_800.0, 80.0, 30.0),
         aids: AidConfig {
             glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_DI_K, DEFAULT_GLOW_TIME_CONSTANT_S),
@@ -193,7 +193,7 @@ pub const ARCHETYPES: &[Archetype] = &[
     },
     Archetype {
         id: "light-di-v8",
-        description: "Light-duty direct-injection V8 pickup engine, 6.6 L class, compression 17.5",
+        description: "Large light-duty direct-injection engine, 6 to 7 L class",
         engine: engine(103.0, 99.0, 17.5, 8, DirectInjection, 2_800.0, 100.0, 30.0),
         aids: AidConfig {
             glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_DI_K, DEFAULT_GLOW_TIME_CONSTANT_S),
@@ -203,7 +203,7 @@ pub const ARCHETYPES: &[Archetype] = &[
     },
     Archetype {
         id: "medium-di-i6",
-        description: "Medium-duty direct-injection inline-6, 7 L class (bus, delivery truck)",
+        description: "Medium-duty direct-injection engine, 7 L class",
         engine: engine(107.0, 127.0, 17.3, 6, DirectInjection, 5_500.0, 100.0, 30.0),
         aids: AidConfig {
             intake_heater_w: 1_800.0,
@@ -212,7 +212,7 @@ pub const ARCHETYPES: &[Archetype] = &[
     },
     Archetype {
         id: "heavy-di-i6",
-        description: "Heavy-duty direct-injection inline-6, 13 L class (tractor, plow)",
+        description: "Heavy-duty direct-injection engine, 13 L class",
         engine: engine(131.0, 160.0, 16.8, 6, DirectInjection, 7_500.0, 100.0, 30.0),
         aids: AidConfig {
             intake_heater_w: 2_500.0,
@@ -221,7 +221,7 @@ pub const ARCHETYPES: &[Archetype] = &[
     },
     Archetype {
         id: "older-idi-v8",
-        description: "Older indirect-injection (prechamber) light-truck V8, 7.3 L class",
+        description: "Large prechamber (indirect-injection) engine, 7 to 8 L class",
         engine: engine(104.0, 106.0, 21.5, 8, Prechamber, 2_500.0, 80.0, 35.0),
         aids: AidConfig {
             glow_plugs: glow_plugs(GLOW_PLATEAU_GAIN_PRECHAMBER_K, OLDER_GLOW_TIME_CONSTANT_S),
@@ -231,7 +231,7 @@ pub const ARCHETYPES: &[Archetype] = &[
     },
     Archetype {
         id: "swirl-idi-i4",
-        description: "Swirl-chamber indirect-injection inline-4, 2.5 L class (older pickup, van)",
+        description: "Small swirl-chamber (indirect-injection) engine, 2.5 L class",
         engine: engine(91.0, 96.0, 21.0, 4, SwirlChamber, 1_800.0, 80.0, 35.0),
         aids: AidConfig {
             glow_plugs: glow_plugs(
@@ -244,7 +244,7 @@ pub const ARCHETYPES: &[Archetype] = &[
     },
     Archetype {
         id: "offroad-di-i4",
-        description: "Off-road direct-injection inline-4, 4.5 L class (loader, tractor, generator)",
+        description: "Mid-size direct-injection engine, 4.5 L class",
         engine: engine(106.0, 127.0, 17.0, 4, DirectInjection, 3_000.0, 100.0, 30.0),
         aids: AidConfig {
             intake_heater_w: 1_500.0,
