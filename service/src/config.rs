@@ -111,6 +111,8 @@ pub struct Config {
     /// Age after which a client connection is asked to reconnect (HTTP/2 GOAWAY; calls in flight
     /// finish), seconds, so that clients spread over replicas added later; 0 = never.
     pub max_connection_age_s: f64,
+    /// The `[streams]` section: fair sharing, per-tenant quotas, watch idle timeout.
+    pub streams: crate::watch::settings::StreamSettings,
 }
 
 impl Default for Config {
@@ -150,6 +152,7 @@ impl Default for Config {
             metrics_listen: DEFAULT_METRICS_LISTEN.to_string(),
             max_open_streams: 1024,
             max_connection_age_s: 0.0,
+            streams: Default::default(),
         }
     }
 }
@@ -376,6 +379,7 @@ impl Config {
         if self.max_open_streams == 0 {
             problems.push("max_open_streams must be at least 1".to_string());
         }
+        problems.extend(self.streams.problems());
         let age = self.max_connection_age_s;
         if !age.is_finite() || !(0.0..=604_800.0).contains(&age) {
             problems.push(format!(
