@@ -402,7 +402,7 @@ impl FleetStream {
                         // and vehicle id back: item ids are unique, vehicle ids need not be.
                         let index: Vec<String> = (0..found.len()).map(|i| i.to_string()).collect();
                         let chosen: Vec<PlugInCandidate> =
-                            found.iter().map(|(_, _, c)| c.clone()).collect();
+                            found.iter().map(|(_, _, c)| *c).collect();
                         let mut plan = convert::plan_to_pb(&depot_id, &limits, &index, &chosen);
                         for p in &mut plan.plug_ins {
                             if let Some((item, vehicle, _)) = p

@@ -1340,3 +1340,69 @@ pub fn assessment_to_pb(
 pub(crate) fn cached<T: Clone>(cell: &'static OnceLock<T>, make: impl FnOnce() -> T) -> T {
     cell.get_or_init(make).clone()
 }
+
+#[cfg(test)]
+mod request_path_tests {
+    use super::*;
+    use startmargin_model::ModelError;
+
+    fn field_of(e: ApiError) -> String {
+        match e {
+            ApiError::InvalidArgument(v) => v[0].field.clone(),
+            other => panic!("expected INVALID_ARGUMENT, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn model_quantities_are_reported_at_request_fields() {
+        let out = |quantity| ModelError::OutOfRange {
+            quantity,
+            value: 1.0,
+            reason: "test",
+        };
+        for (quantity, field) in [
+            ("rest_v", "night.telemetry.battery_rest_v"),
+            ("displacement_m3", "night.vehicle.engine"),
+            ("rated_cca_a", "night.vehicle.battery.capacity_cca"),
+            ("air_t_k", "night.forecast.points"),
+            // A quantity the model derives internally: the night as a whole.
+            ("t_k", "night"),
+        ] {
+            assert_eq!(
+                field_of(ApiError::from_model("night", out(quantity))),
+                field,
+                "{quantity}"
+            );
+        }
+    }
+
+    #[test]
+    fn every_mapped_field_is_a_field_of_the_night_message() {
+        // The first segment must be a VehicleNight field; deeper ones are checked by the
+        // end-to-end tests through the real messages.
+        let night_fields = [
+            "vehicle",
+            "telemetry",
+            "forecast",
+            "forecast_zone_id",
+            "departure_time",
+            "block_heater_plan",
+            "options",
+            "depot_id",
+        ];
+        for quantity in [
+            "rest_v",
+            "observed_at_s",
+            "forecast_step_s",
+            "block_heater_on_from_s",
+            "glow_preheat_s",
+            "cooldown_time_constant_s",
+            "health_fraction",
+            "fuel_t_when_added_k",
+        ] {
+            let field = model_quantity_field(quantity).expect("mapped");
+            let head = field.split('.').next().unwrap_or_default();
+            assert!(night_fields.contains(&head), "{quantity} → {field}");
+        }
+    }
+}

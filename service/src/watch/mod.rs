@@ -307,23 +307,23 @@ impl WatchStream {
         let (source, affected, undo) = match request.update {
             Some(Update::Vehicle(w)) => match self.upsert(w, &mut events) {
                 Ok((ids, undo)) => (Source::Vehicle, ids, undo),
-                Err((id, e)) => return Ok(self.refuse(seq, id, e, events)),
+                Err((id, e)) => return self.refuse(seq, id, e, events),
             },
             Some(Update::Telemetry(t)) => match self.telemetry(t) {
                 Ok((ids, undo)) => (Source::Telemetry, ids, undo),
-                Err((id, e)) => return Ok(self.refuse(seq, id, e, events)),
+                Err((id, e)) => return self.refuse(seq, id, e, events),
             },
             Some(Update::ZoneForecast(z)) => match self.zone(z) {
                 Ok(ids) => (Source::ZoneForecast, ids, None),
-                Err(e) => return Ok(self.refuse(seq, String::new(), e, events)),
+                Err(e) => return self.refuse(seq, String::new(), e, events),
             },
             Some(Update::Departure(d)) => match self.departure(d, &mut events) {
                 Ok((ids, undo)) => (Source::Departure, ids, undo),
-                Err((id, e)) => return Ok(self.refuse(seq, id, e, events)),
+                Err((id, e)) => return self.refuse(seq, id, e, events),
             },
             Some(Update::Removal(r)) => {
                 if let Err(e) = convert::check_id("removal.vehicle_id", &r.vehicle_id, true) {
-                    return Ok(self.refuse(seq, r.vehicle_id, e, events));
+                    return self.refuse(seq, r.vehicle_id, e, events);
                 }
                 self.remove(&r.vehicle_id, &mut events);
                 (Source::Removal, Vec::new(), None)
@@ -333,17 +333,25 @@ impl WatchStream {
                     "update",
                     "one of vehicle, telemetry, zone_forecast, departure or removal is required",
                 );
-                return Ok(self.refuse(seq, String::new(), e, events));
+                return self.refuse(seq, String::new(), e, events);
             }
         };
         self.outbox.push(events);
         self.score(seq, source, affected, undo).await
     }
 
-    fn refuse(&self, seq: u64, vehicle_id: String, e: ApiError, mut events: Vec<Event>) {
+    /// Queues the refusal of an update (after `events`); the stream goes on.
+    fn refuse(
+        &self,
+        seq: u64,
+        vehicle_id: String,
+        e: ApiError,
+        mut events: Vec<Event>,
+    ) -> Result<(), Stop> {
         debug!(seq, code = ?e.code(), "update refused");
         events.push(refused(seq, &vehicle_id, e));
         self.outbox.push(events);
+        Ok(())
     }
 
     fn upsert(
