@@ -345,3 +345,49 @@ impl crate::Client {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn vehicle(item_id: &str, depot_id: &str) -> FleetItem {
+        FleetItem(api::AssessFleetRequest {
+            item_id: item_id.into(),
+            item: Some(api::assess_fleet_request::Item::Vehicle(
+                api::VehicleNight {
+                    depot_id: depot_id.into(),
+                    ..Default::default()
+                },
+            )),
+        })
+    }
+
+    #[test]
+    fn a_resend_carries_the_context_the_unanswered_and_what_a_missing_plan_needs() {
+        let items = vec![
+            FleetItem(api::AssessFleetRequest {
+                item_id: "zone:z".into(),
+                item: Some(api::assess_fleet_request::Item::ZoneForecast(
+                    api::ZoneForecast::default(),
+                )),
+            }),
+            FleetItem::depot_outlets("east", 2, None),
+            vehicle("a", "east"),
+            vehicle("b", "east"),
+            vehicle("c", ""),
+            vehicle("d", ""),
+        ];
+        let mut answered = Answered::default();
+        answered.vehicles.extend(["a".to_string(), "c".to_string()]);
+        let (send, unanswered, for_plans) = answered.to_send(&items);
+        let ids: Vec<&str> = send.iter().map(FleetItem::item_id).collect();
+        assert_eq!(ids, ["zone:z", "depot:east", "a", "b", "d"]);
+        assert_eq!((unanswered, for_plans), (2, 1));
+        // Once the plan came, the depot's answered vehicles stay answered.
+        answered.plans.insert("depot:east".to_string());
+        let (send, unanswered, for_plans) = answered.to_send(&items);
+        let ids: Vec<&str> = send.iter().map(FleetItem::item_id).collect();
+        assert_eq!(ids, ["zone:z", "depot:east", "b", "d"]);
+        assert_eq!((unanswered, for_plans), (2, 0));
+    }
+}

@@ -833,3 +833,62 @@ fn check_time(t: Option<&Timestamp>) -> Result<i64, &'static str> {
 fn draining_status() -> Status {
     ApiError::Unavailable(DRAINING_MESSAGE.to_string()).into()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn scored_night_paths_become_the_paths_of_the_update_they_came_in() {
+        for (night, source, request) in [
+            (
+                "night.vehicle.battery.capacity_cca",
+                Source::ZoneForecast,
+                "vehicle.vehicle.battery.capacity_cca",
+            ),
+            (
+                "night.telemetry.observed_at",
+                Source::Departure,
+                "telemetry.telemetry.observed_at",
+            ),
+            (
+                "night.forecast.points[3].air_c",
+                Source::Telemetry,
+                "zone_forecast.forecast.points[3].air_c",
+            ),
+            (
+                "night.departure_time",
+                Source::Departure,
+                "departure.departure_time",
+            ),
+            (
+                "night.departure_time",
+                Source::Vehicle,
+                "vehicle.departure_time",
+            ),
+            (
+                "night.block_heater_plan",
+                Source::Telemetry,
+                "telemetry.block_heater_on",
+            ),
+            ("night", Source::ZoneForecast, "zone_forecast"),
+        ] {
+            assert_eq!(request_path(night, source), request, "{night}");
+        }
+        let e = request_error(
+            ApiError::FailedPrecondition("night: the forecast does not cover it".into()),
+            Source::ZoneForecast,
+        );
+        assert_eq!(
+            e,
+            ApiError::FailedPrecondition("zone_forecast: the forecast does not cover it".into())
+        );
+    }
+
+    #[test]
+    fn utc_times_read_as_calendar_dates() {
+        assert_eq!(utc(0), "1970-01-01T00:00:00Z");
+        assert_eq!(utc(1_736_877_600), "2025-01-14T18:00:00Z");
+        assert_eq!(utc(951_782_400), "2000-02-29T00:00:00Z");
+    }
+}
