@@ -73,7 +73,7 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     let mut svg = Svg::new(w, h);
     svg.bold(
         (x0, 34.0),
-        &format!("Start margin through the night — {}", s.depot),
+        &format!("Charge-temperature margin through the night — {}", s.depot),
         18.0,
         Anchor::Start,
     );
@@ -140,7 +140,7 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     );
     svg.text(
         (x0 + 8.0, ys.map(0.0) + 16.0),
-        "below 0 K: not expected to fire",
+        "below 0 K: charge too cold to fire (other modes: see legend)",
         11.0,
         Anchor::Start,
         "#b71c1c",
@@ -176,12 +176,16 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
         Anchor::Middle,
         "#333",
     );
-    svg.vertical_text((26.0, (y0 + y1) / 2.0), "start margin, K", 12.0);
+    svg.vertical_text(
+        (26.0, (y0 + y1) / 2.0),
+        "charge-temperature margin, K",
+        12.0,
+    );
 
     let lx = x1 + 24.0;
     svg.bold(
         (lx, y0 + 4.0),
-        "vehicle · departs · margin",
+        "vehicle · departs · binding margin",
         12.0,
         Anchor::Start,
     );
@@ -202,10 +206,10 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
         svg.text(
             (lx + 30.0, y + 14.0),
             &format!(
-                "{} · {} · {:+.1} K{}",
+                "{} · {} · {}{}",
                 r.vehicle.archetype,
                 local_hhmm(r.vehicle.departure),
-                r.assessment.start_margin_k,
+                crate::table::binding_margin(r.assessment),
                 if r.assessment.start_expected {
                     ""
                 } else {

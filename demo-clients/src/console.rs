@@ -19,7 +19,7 @@ pub fn evening_text(s: &Scenario, rows: &[Row<'_>]) -> String {
     let _ = writeln!(out, "{} — evening run (invented scenario)", s.depot);
     let _ = writeln!(
         out,
-        "Forecast {}–{} local: +2 °C falling to −24 °C, wind dropping, skies clearing. Model: {version}",
+        "Forecast {}–{} local: +2 °C falling to −17.5 °C, wind dropping, skies clearing. Model: {version}",
         local_hhmm(s.forecast_start),
         local_hhmm(s.forecast_end()),
     );

@@ -2,7 +2,7 @@
 //! the weather are made up for the demo; any likeness to a real place or fleet is accidental.
 //!
 //! Frostmere Municipal Works Yard (fictional), a mid-winter Tuesday evening. A cold front comes
-//! through overnight: the hourly forecast falls from about +2 °C at 17:00 to −24 °C at 07:00 while
+//! through overnight: the hourly forecast falls from about +2 °C at 17:00 to −17 °C at 07:00 (an ordinary cold night for the region) while
 //! the wind drops and the sky clears (clear, still nights cool parked vehicles fastest). Twelve
 //! vehicles of seven archetypes were keyed off around 17:30 with warm engines and leave between
 //! 04:30 and 07:30. Their fuels, batteries, oils and start aids differ on purpose: one truck still
@@ -42,20 +42,20 @@ pub const LOCAL_DATE: (i32, u32, u32) = (2025, 1, 14);
 const FORECAST: [(f64, f64, f64); 16] = [
     (2.0, 8.0, 100.0),  // 17:00
     (0.5, 7.5, 95.0),   // 18:00
-    (-2.0, 7.0, 90.0),  // 19:00
-    (-5.0, 6.0, 75.0),  // 20:00
-    (-8.0, 5.0, 55.0),  // 21:00
-    (-11.0, 4.0, 35.0), // 22:00
-    (-13.5, 3.5, 20.0), // 23:00
-    (-15.5, 3.0, 10.0), // 00:00
-    (-17.5, 2.5, 5.0),  // 01:00
-    (-19.0, 2.0, 0.0),  // 02:00
-    (-20.5, 1.5, 0.0),  // 03:00
-    (-21.5, 1.5, 0.0),  // 04:00
-    (-22.5, 1.0, 0.0),  // 05:00
-    (-23.5, 1.0, 0.0),  // 06:00
-    (-24.0, 1.0, 0.0),  // 07:00
-    (-23.0, 1.5, 0.0),  // 08:00, covers until 09:00
+    (-1.5, 7.0, 90.0),  // 19:00
+    (-3.5, 6.0, 75.0),  // 20:00
+    (-6.0, 5.0, 55.0),  // 21:00
+    (-8.0, 4.0, 35.0),  // 22:00
+    (-9.5, 3.5, 20.0),  // 23:00
+    (-11.0, 3.0, 10.0), // 00:00
+    (-12.5, 2.5, 5.0),  // 01:00
+    (-13.5, 2.0, 0.0),  // 02:00
+    (-15.0, 1.5, 0.0),  // 03:00
+    (-15.5, 1.5, 0.0),  // 04:00
+    (-16.0, 1.0, 0.0),  // 05:00
+    (-17.0, 1.0, 0.0),  // 06:00
+    (-17.5, 1.0, 0.0),  // 07:00
+    (-16.5, 1.5, 0.0),  // 08:00, covers until 09:00
 ];
 
 /// One vehicle of the depot with what the report needs besides its night.

@@ -60,6 +60,30 @@ pub fn limiting_words(a: &VehicleAssessment) -> String {
     words(a.limiting_factor().as_str_name(), "LIMITING_FACTOR_")
 }
 
+/// Margins farther than this from zero read as "far" (K or rpm): a figure beyond it means nothing
+/// more to a dispatcher.
+const FAR_MARGIN: f64 = 100.0;
+
+/// The binding failure mode's margin with its unit: the headline every other column agrees with.
+pub fn binding_margin(a: &VehicleAssessment) -> String {
+    let Some(m) = a.modes.iter().find(|m| m.mode == a.binding_mode) else {
+        return format!("{:+.1} K", a.start_margin_k);
+    };
+    let short = match m.mode() {
+        startmargin_sdk::FailureMode::CrankingSpeed => "crank",
+        startmargin_sdk::FailureMode::FrozenBattery => "battery",
+        startmargin_sdk::FailureMode::FuelFlow => "fuel",
+        _ => "charge",
+    };
+    if m.margin > FAR_MARGIN {
+        format!("{short} >+{FAR_MARGIN:.0} {}", m.unit)
+    } else if m.margin < -FAR_MARGIN {
+        format!("{short} <-{FAR_MARGIN:.0} {}", m.unit)
+    } else {
+        format!("{short} {:+.1} {}", m.margin, m.unit)
+    }
+}
+
 /// The first recommended action's summary, or "—".
 pub fn first_action(a: &VehicleAssessment) -> String {
     a.actions
@@ -97,9 +121,9 @@ pub fn default_columns() -> Vec<Column> {
             cell: |r| local_hhmm(r.vehicle.departure),
         },
         Column {
-            header: "margin K",
+            header: "binding margin",
             align: Align::Right,
-            cell: |r| ok_or(r, "error", |a| format!("{:+.1}", a.start_margin_k)),
+            cell: |r| ok_or(r, "error", binding_margin),
         },
         Column {
             header: "start expected",

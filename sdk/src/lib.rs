@@ -52,9 +52,9 @@ mod watch;
 pub use startmargin_proto::v1 as api;
 
 pub use api::{
-    BiodieselFeedstock, CombustionSystem, DelayCorrelation, FilterMount, FuelGrade, GelLevel,
-    GlowPlugHealth, LimitingFactor, PlugInPlan, ProbabilityMethod, StartOutlook, UncertaintySource,
-    VehicleAssessment,
+    BiodieselFeedstock, CombustionSystem, DelayCorrelation, FailureMode, FilterMount, FuelGrade,
+    GelLevel, GlowPlugHealth, LimitingFactor, PlugInPlan, ProbabilityMethod, StartOutlook,
+    UncertaintySource, VehicleAssessment,
 };
 pub use client::{Client, ClientBuilder};
 pub use error::Error;

@@ -10,11 +10,12 @@ use prost_types::{Duration, Timestamp};
 use startmargin_model::aids::GlowPlugs;
 use startmargin_model::archetypes::{self, AidConfig, CombustionSystem, EngineOverrides};
 use startmargin_model::assess::actions::{Action, ActionKind, ActionPolicy};
+use startmargin_model::assess::decision::{self, DecisionPolicy};
 use startmargin_model::assess::outlook::{OutlookThresholds, StartOutlook};
-use startmargin_model::assess::uncertainty::{self, Method, UncertaintySource};
+use startmargin_model::assess::uncertainty::{Method, UncertaintySource};
 use startmargin_model::assess::{
-    self, AssessOptions, Assessment, BatteryConfig, ForecastSeries, FuelConfig, LimitingFactor,
-    Telemetry, VehicleNight,
+    self, AssessOptions, Assessment, BatteryConfig, FailureMode, ForecastSeries, FuelConfig,
+    LimitingFactor, Telemetry, VehicleNight,
 };
 use startmargin_model::constants::{STANDARD_ATMOSPHERE_PA, celsius_to_kelvin, kelvin_to_celsius};
 use startmargin_model::fuel::{
@@ -1000,21 +1001,27 @@ pub struct Decided {
 }
 
 /// Assesses one vehicle fully: margin, probability, outlook, actions, and its plug-in candidate.
+/// Validates and converts; the decision itself is the model's one pure function.
 pub fn decide(
     night: &pb::VehicleNight,
     path: &str,
     zones: &ZoneForecasts,
     policy: &Policy,
 ) -> Result<Decided, ApiError> {
-    let (vehicle_id, mut domain) = night_from_pb(night, path, zones)?;
+    let target = match night.options.as_ref().and_then(|o| o.target_no_start_pct) {
+        None => policy.target_probability,
+        Some(pct) if pct.is_finite() && pct > 0.0 && pct < 100.0 => pct / 100.0,
+        Some(_) => {
+            return Err(ApiError::field(
+                format!("{path}.options.target_no_start_pct"),
+                "the target no-start probability must lie strictly between 0 and 100 percent",
+            ));
+        }
+    };
+    let (vehicle_id, domain) = night_from_pb(night, path, zones)?;
     // Model time for the metrics: the whole decision (assessment, probability, actions, plan).
     let started = std::time::Instant::now();
     let model_err = |e| ApiError::from_model(path, e);
-    let target = night
-        .options
-        .as_ref()
-        .and_then(|o| o.target_no_start_pct)
-        .map_or(policy.target_probability, |pct| pct / 100.0);
     let method = match night.options.as_ref().map(|o| o.probability_method()) {
         Some(pb::ProbabilityMethod::Sampling) => Method::Sampling {
             samples: SAMPLING_SAMPLES,
@@ -1022,60 +1029,106 @@ pub fn decide(
         },
         _ => Method::SigmaPoints,
     };
-    let a = assess::assess(&domain).map_err(model_err)?;
-    let p =
-        uncertainty::no_start_probability(&domain, a.state_of_charge, method).map_err(model_err)?;
-    let mut actions = Vec::new();
-    let action_policy = ActionPolicy {
-        target_probability: target,
+    let d = decision::decide(
+        &domain,
+        &DecisionPolicy {
+            thresholds: policy.thresholds,
+            target_probability: target,
+            method,
+        },
+    )
+    .map_err(model_err)?;
+    // Depot candidate: the vehicle's probability with its heater from the planned time.
+    let plug_in = match d.heater {
+        Some(h) if !night.depot_id.is_empty() => Some(PlugInCandidate {
+            p_without: h.p_without,
+            p_with: h.p_with,
+            heater_w: domain.aids.block_heater_w,
+            plug_in_s: h.plug_in_s,
+            margin_without_k: h.margin_without_k,
+        }),
+        _ => None,
     };
-    assess::actions::recommend(&domain, &a, &action_policy, &mut actions).map_err(model_err)?;
-    let outlook = policy.thresholds.outlook(p.probability, a.gel.level);
-
-    // Depot candidate: the vehicle's probability with its heater from the recommended time.
-    let plug_in = if night.depot_id.is_empty() || domain.aids.block_heater_w <= 0.0 {
-        None
-    } else {
-        let target_k = assess::actions::target_margin_k(&action_policy);
-        match assess::actions::latest_plug_in_s(&domain, target_k).map_err(model_err)? {
-            Some((plug_s, _)) => {
-                let without = if domain.block_heater_plan.is_some() {
-                    let mut n = domain.clone();
-                    n.block_heater_plan = None;
-                    let a0 = assess::assess(&n).map_err(model_err)?;
-                    (
-                        uncertainty::no_start_probability(&n, a0.state_of_charge, method)
-                            .map_err(model_err)?
-                            .probability,
-                        a0.margin_k,
-                    )
-                } else {
-                    (p.probability, a.margin_k)
-                };
-                domain.block_heater_plan = Some((plug_s, domain.departure_s));
-                let with = uncertainty::no_start_probability(&domain, a.state_of_charge, method)
-                    .map_err(model_err)?;
-                Some(PlugInCandidate {
-                    p_without: without.0,
-                    p_with: with.probability,
-                    heater_w: domain.aids.block_heater_w,
-                    plug_in_s: plug_s,
-                    margin_without_k: without.1,
-                })
-            }
-            None => None,
-        }
-    };
-    let mut message = assessment_to_pb(vehicle_id, &domain, &a);
+    let a = &d.assessment;
+    let p = &d.probability;
+    let mut message = assessment_to_pb(vehicle_id, &domain, a);
+    message.limiting_factor = limiting_to_pb(d.limiting_factor) as i32;
+    message.explanation = explanation(a, d.limiting_factor);
     message.no_start_pct = p.probability * 100.0;
     message.margin_spread_k = p.margin_spread_k;
     message.dominant_uncertainty = uncertainty_to_pb(p.dominant) as i32;
-    message.outlook = outlook_to_pb(outlook) as i32;
+    message.outlook = outlook_to_pb(d.outlook) as i32;
     message.no_start_standard_error_pct = p.standard_error * 100.0;
     message.depot_id = night.depot_id.clone();
-    message.actions = actions.iter().map(action_to_pb).collect();
+    message.actions = d.actions.iter().map(action_to_pb).collect();
+    message.binding_mode = failure_mode_to_pb(p.binding) as i32;
+    message.modes = FailureMode::ALL
+        .iter()
+        .rev()
+        .map(|&m| pb::ModeMargin {
+            mode: failure_mode_to_pb(m) as i32,
+            margin: a.modes.get(m),
+            unit: m.unit().to_string(),
+            spread: p.spread_of(m),
+            no_start_pct: p.of_mode(m) * 100.0,
+        })
+        .collect();
+    message.headline = headline(p.binding, p.binding_margin, a);
     crate::metrics::record_model_time(started.elapsed());
     Ok(Decided { message, plug_in })
+}
+
+fn failure_mode_to_pb(m: FailureMode) -> pb::FailureMode {
+    match m {
+        FailureMode::ChargeTemperature => pb::FailureMode::ChargeTemperature,
+        FailureMode::CrankingSpeed => pb::FailureMode::CrankingSpeed,
+        FailureMode::FrozenBattery => pb::FailureMode::FrozenBattery,
+        FailureMode::FuelFlow => pb::FailureMode::FuelFlow,
+    }
+}
+
+/// Margins farther than this from zero are not printed to the unit: they carry no more meaning
+/// than "far from the limit" (K or rpm).
+const HEADLINE_FAR: f64 = 100.0;
+
+/// The binding margin as a person reads it.
+fn headline(mode: FailureMode, margin: f64, a: &Assessment) -> String {
+    let far = margin.abs() > HEADLINE_FAR;
+    match (mode, margin > 0.0) {
+        (FailureMode::ChargeTemperature, true) if far => {
+            "charge temperature: more than 100 K to spare".into()
+        }
+        (FailureMode::ChargeTemperature, true) => {
+            format!("charge temperature: {margin:.0} K to spare")
+        }
+        (FailureMode::ChargeTemperature, false) if far => {
+            "charge temperature: more than 100 K short of what ignition needs".into()
+        }
+        (FailureMode::ChargeTemperature, false) => {
+            format!(
+                "charge temperature: {:.0} K short of what ignition needs",
+                -margin
+            )
+        }
+        (FailureMode::CrankingSpeed, true) => format!(
+            "cranking: {margin:.0} rpm above the {:.0} rpm starting speed",
+            a.cranking.min_start_speed_rpm
+        ),
+        (FailureMode::CrankingSpeed, false) => format!(
+            "cranking: {:.0} rpm below the {:.0} rpm starting speed",
+            -margin, a.cranking.min_start_speed_rpm
+        ),
+        (FailureMode::FrozenBattery, true) => {
+            format!("battery: {margin:.0} K above its freezing point")
+        }
+        (FailureMode::FrozenBattery, false) => "battery: frozen".into(),
+        (FailureMode::FuelFlow, true) => {
+            format!("fuel: {margin:.1} K above its filter-plugging limit")
+        }
+        (FailureMode::FuelFlow, false) => {
+            format!("fuel: {:.1} K below its filter-plugging limit", -margin)
+        }
+    }
 }
 
 fn uncertainty_to_pb(u: UncertaintySource) -> pb::UncertaintySource {
@@ -1122,6 +1175,8 @@ fn action_to_pb(a: &Action) -> pb::Action {
         act_by: a.act_by_s.map(timestamp),
         energy_kwh: a.energy_j / 3.6e6,
         caution: a.caution.unwrap_or("").to_string(),
+        no_start_after_pct: a.no_start_after * 100.0,
+        tonight: a.tonight,
     }
 }
 
@@ -1192,10 +1247,10 @@ fn limiting_to_pb(l: LimitingFactor) -> pb::LimitingFactor {
     }
 }
 
-fn explanation(a: &Assessment) -> String {
+fn explanation(a: &Assessment, limiting: LimitingFactor) -> String {
     let b = &a.budget;
     let c = &a.cranking;
-    match a.limiting_factor {
+    match limiting {
         LimitingFactor::None => format!(
             "Charge reaches {:.0} °C against {:.0} °C needed: {:.0} K to spare.",
             kelvin_to_celsius(b.predicted_end_t_k),
@@ -1265,7 +1320,7 @@ pub fn assessment_to_pb(
         start_margin_k: a.margin_k,
         start_expected: a.start_expected,
         limiting_factor: limiting_to_pb(a.limiting_factor) as i32,
-        explanation: explanation(a),
+        explanation: explanation(a, a.limiting_factor),
         budget: Some(pb::HeatBudget {
             intake_c: c(b.intake_t_k),
             ideal_end_c: c(b.ideal_end_t_k),
@@ -1278,6 +1333,7 @@ pub fn assessment_to_pb(
             required_c: c(b.required_t_k),
             end_pressure_kpa: b.end_p_pa / 1000.0,
             compression_gauge_kpa: b.compression_gauge_pa / 1000.0,
+            ivc_c: c(b.ivc_t_k),
         }),
         cranking: Some(pb::CrankingOutcome {
             cranking_rpm: a.cranking.result.crank_rpm,
@@ -1333,6 +1389,9 @@ pub fn assessment_to_pb(
             })
             .collect(),
         actions: Vec::new(),
+        binding_mode: pb::FailureMode::Unspecified as i32,
+        modes: Vec::new(),
+        headline: String::new(),
     }
 }
 

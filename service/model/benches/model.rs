@@ -9,7 +9,7 @@
 
 use criterion::{Criterion, criterion_group, criterion_main};
 use startmargin_model::archetypes::find;
-use startmargin_model::assess::actions::{ActionPolicy, recommend};
+use startmargin_model::assess::decision::{DecisionPolicy, decide};
 use startmargin_model::assess::unassisted::reference_night;
 use startmargin_model::assess::uncertainty::{Method, no_start_probability};
 use startmargin_model::assess::{Telemetry, VehicleNight, assess};
@@ -145,22 +145,19 @@ fn bench_probability(c: &mut Criterion) {
 }
 
 fn bench_actions(c: &mut Criterion) {
-    // A light truck at risk: −15 °C on 15W-40, a 1 kW block heater, no plug-in planned.
+    // A light truck at risk: −15 °C on 15W-40, a 1 kW block heater, no plug-in planned. The whole
+    // decision: assessment, probability, heater search and the other actions.
     let mut n = night("light-di-v8", -15.0);
     n.aids.block_heater_w = 1_000.0;
-    let a = assess(&n).expect("valid night");
-    let policy = ActionPolicy::default();
-    let mut out = Vec::with_capacity(16);
-    recommend(&n, &a, &policy, &mut out).expect("valid night");
+    let policy = DecisionPolicy::default();
+    let d = decide(&n, &policy).expect("valid night");
     eprintln!(
-        "action search: {} actions for light-di-v8 at −15 °C",
-        out.len()
+        "decision: {} actions for light-di-v8 at −15 °C, {:.1} % no-start",
+        d.actions.len(),
+        d.probability.probability * 100.0
     );
-    c.bench_function("recommend (vehicle at risk, block heater)", |b| {
-        b.iter(|| {
-            out.clear();
-            recommend(black_box(&n), black_box(&a), &policy, &mut out)
-        })
+    c.bench_function("decide (vehicle at risk, block heater)", |b| {
+        b.iter(|| decide(black_box(&n), &policy))
     });
 }
 

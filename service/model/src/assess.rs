@@ -15,6 +15,7 @@
 
 pub mod actions;
 pub mod calibration;
+pub mod decision;
 pub mod outlook;
 pub mod unassisted;
 pub mod uncertainty;
@@ -31,6 +32,7 @@ use crate::evaporation;
 use crate::fuel::{self, ColdFlowProperties, FuelDescription};
 use crate::gel_risk::{self, FuelTemperatureSample, GelOutlook};
 use crate::ignition::{self, DelayCorrelation};
+use crate::induction;
 use crate::oil::{self, SaeGrade};
 use crate::soak::{self, FilterMount, Forecast, ForecastHour, HeaterSchedule, ThermalNode};
 
@@ -156,9 +158,12 @@ pub struct VehicleNight {
 /// The heat budget (see the module doc); temperatures in K, terms in K.
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct HeatBudget {
-    /// Charge temperature at IVC without aids, K.
+    /// Air temperature entering the intake, K.
     pub intake_t_k: f64,
-    /// Ideal isentropic end temperature, K.
+    /// Charge temperature at intake valve closing after the port and cylinder walls warmed it
+    /// (induction heating, no aids), K.
+    pub ivc_t_k: f64,
+    /// Ideal isentropic end temperature from the IVC charge temperature, K.
     pub ideal_end_t_k: f64,
     /// Wall loss, K (positive = cooling).
     pub wall_loss_k: f64,
@@ -205,7 +210,7 @@ pub struct SoakedState {
 /// What decides the outcome.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum LimitingFactor {
-    /// Nothing limits: comfortable margin.
+    /// Nothing limits: every failure mode has a comfortable margin.
     None,
     /// The soaked engine takes too much heat from the charge.
     ColdCharge,
@@ -219,9 +224,97 @@ pub enum LimitingFactor {
     WaxedFuel,
 }
 
-/// Margin below which the outcome is "limited" even though a start is expected, K (about the
-/// spread of the published start limits; estimate).
-pub const COMFORT_MARGIN_K: f64 = 15.0;
+/// The ways a start can fail, each with a margin in its own unit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum FailureMode {
+    /// The charge does not reach the temperature ignition needs (margin in K).
+    ChargeTemperature,
+    /// The starter cannot reach the minimum starting speed (margin in rpm).
+    CrankingSpeed,
+    /// The battery electrolyte freezes (margin in K above its freezing point).
+    FrozenBattery,
+    /// The fuel does not pass the filter (margin in K above the CFPP or pour point).
+    FuelFlow,
+}
+
+impl FailureMode {
+    /// All modes, in the order ties are broken (the first hard failure wins).
+    pub const ALL: [FailureMode; 4] = [
+        FailureMode::FrozenBattery,
+        FailureMode::FuelFlow,
+        FailureMode::CrankingSpeed,
+        FailureMode::ChargeTemperature,
+    ];
+
+    /// The model's own error of this mode's margin, one standard deviation, in the mode's unit
+    /// (estimates: [`uncertainty::MODEL_MARGIN_SIGMA_K`] for the charge, about 15 % of a
+    /// 100 rpm starting speed for cranking, the spread of the freezing-point table for the
+    /// battery, the fuel-path error for the fuel).
+    pub const fn model_sigma(self) -> f64 {
+        match self {
+            FailureMode::ChargeTemperature => uncertainty::MODEL_MARGIN_SIGMA_K,
+            FailureMode::CrankingSpeed => 15.0,
+            FailureMode::FrozenBattery => 2.0,
+            FailureMode::FuelFlow => 1.5,
+        }
+    }
+
+    /// Unit of the mode's margin.
+    pub const fn unit(self) -> &'static str {
+        match self {
+            FailureMode::CrankingSpeed => "rpm",
+            _ => "K",
+        }
+    }
+}
+
+/// The margin of every failure mode (positive = that mode does not stop the start).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct ModeMargins {
+    /// Charge temperature at TDC above what ignition needs, K.
+    pub charge_k: f64,
+    /// Cranking speed above the minimum starting speed, rpm.
+    pub cranking_rpm: f64,
+    /// Battery temperature above its electrolyte freezing point, K.
+    pub battery_freeze_k: f64,
+    /// Lowest fuel temperature above the nearer of its CFPP and pour point, K.
+    pub fuel_flow_k: f64,
+}
+
+impl ModeMargins {
+    /// The margin of one mode, in its unit.
+    pub const fn get(&self, mode: FailureMode) -> f64 {
+        match mode {
+            FailureMode::ChargeTemperature => self.charge_k,
+            FailureMode::CrankingSpeed => self.cranking_rpm,
+            FailureMode::FrozenBattery => self.battery_freeze_k,
+            FailureMode::FuelFlow => self.fuel_flow_k,
+        }
+    }
+
+    /// The binding mode: the one whose margin is smallest in units of its model error.
+    pub fn binding(&self) -> FailureMode {
+        let mut best = FailureMode::ALL[0];
+        for m in FailureMode::ALL {
+            if self.get(m) / m.model_sigma() < self.get(best) / best.model_sigma() {
+                best = m;
+            }
+        }
+        best
+    }
+
+    /// True when every mode has a positive margin.
+    pub fn all_positive(&self) -> bool {
+        FailureMode::ALL.iter().all(|&m| self.get(m) > 0.0)
+    }
+}
+
+/// Margin below which the outcome is "limited" even though a start is expected, in units of the
+/// mode's model error: 1.5 σ, i.e. 15 K of charge temperature (about the spread of the published
+/// start limits; estimate).
+pub const COMFORT_SIGMAS: f64 = 1.5;
+/// The comfort margin of the charge temperature, K.
+pub const COMFORT_MARGIN_K: f64 = COMFORT_SIGMAS * uncertainty::MODEL_MARGIN_SIGMA_K;
 
 /// Cranking as assessed.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -246,11 +339,15 @@ pub struct MarginPoint {
 /// The answer.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Assessment {
-    /// Start margin, K.
+    /// Charge-temperature margin, K (the thermal failure mode; see `modes` for all of them).
     pub margin_k: f64,
-    /// All checks together: margin, cranking, battery, fuel.
+    /// Every failure mode's margin.
+    pub modes: ModeMargins,
+    /// The failure mode closest to stopping the start.
+    pub binding: FailureMode,
+    /// Every mode has a positive margin.
     pub start_expected: bool,
-    /// What decides.
+    /// What decides: the binding mode's cause, or none when every mode is comfortable.
     pub limiting_factor: LimitingFactor,
     /// The heat budget.
     pub budget: HeatBudget,
@@ -574,24 +671,19 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
     let gel = gel_risk::gel_outlook(&cold_flow, &fuel_path, night.departure_s)?;
 
     let margin_k = point.budget.margin_k();
-    let frozen = point.cranking.result.battery_frozen;
-    let slow = point.cranking.result.crank_rpm < night.engine.min_start_speed_rpm;
-    let limiting_factor = if frozen {
-        LimitingFactor::FrozenBattery
-    } else if gel.blocks_start {
-        LimitingFactor::WaxedFuel
-    } else if slow {
-        LimitingFactor::SlowCranking
-    } else if margin_k < COMFORT_MARGIN_K {
-        if point.budget.leakage_loss_k > point.budget.wall_loss_k {
-            LimitingFactor::Leakage
+    let modes = ModeMargins {
+        charge_k: margin_k,
+        cranking_rpm: if point.cranking.result.battery_frozen {
+            -night.engine.min_start_speed_rpm
         } else {
-            LimitingFactor::ColdCharge
-        }
-    } else {
-        LimitingFactor::None
+            point.cranking.result.crank_rpm - night.engine.min_start_speed_rpm
+        },
+        battery_freeze_k: point.soaked.battery_t_k - battery::electrolyte_freezing_point_k(soc),
+        fuel_flow_k: gel.margin_to_cfpp_k.min(gel.margin_to_pour_point_k),
     };
-    let start_expected = !frozen && !gel.blocks_start && !slow && margin_k > 0.0;
+    let binding = modes.binding();
+    let limiting_factor = limiting_factor_of(binding, &modes, &point.budget);
+    let start_expected = modes.all_positive();
 
     let margin_path = if night.options.include_margin_path {
         margin_path(night, &nodes, &start, heater.as_ref(), soc)?
@@ -605,6 +697,8 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
 
     Ok(Assessment {
         margin_k,
+        modes,
+        binding,
         start_expected,
         limiting_factor,
         budget: point.budget,
@@ -617,6 +711,27 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
         state_of_charge: soc,
         block_heater_energy_j,
     })
+}
+
+/// The cause behind a binding mode, or none when that mode (and so every mode) is comfortable.
+fn limiting_factor_of(binding: FailureMode, modes: &ModeMargins, b: &HeatBudget) -> LimitingFactor {
+    if modes.get(binding) >= COMFORT_SIGMAS * binding.model_sigma() {
+        return LimitingFactor::None;
+    }
+    cause_of(binding, b)
+}
+
+/// The cause a failure mode names.
+pub fn cause_of(mode: FailureMode, b: &HeatBudget) -> LimitingFactor {
+    match mode {
+        FailureMode::FrozenBattery => LimitingFactor::FrozenBattery,
+        FailureMode::FuelFlow => LimitingFactor::WaxedFuel,
+        FailureMode::CrankingSpeed => LimitingFactor::SlowCranking,
+        FailureMode::ChargeTemperature if b.leakage_loss_k > b.wall_loss_k => {
+            LimitingFactor::Leakage
+        }
+        FailureMode::ChargeTemperature => LimitingFactor::ColdCharge,
+    }
 }
 
 fn state_of_charge(night: &VehicleNight) -> Result<f64, ModelError> {
@@ -753,10 +868,12 @@ fn heat_budget(
     let engine = &night.engine;
     let intake_p_pa = night.forecast.barometric_pa;
     let leak_area_m2 = engine.leak_area_m2;
+    let ivc_t_k =
+        induction::ivc_charge(&engine.geometry, crank_rpm, air_t_k, intake_p_pa, wall_t_k)?.ivc_t_k;
     let base = CompressionInput {
         geometry: engine.geometry,
         crank_rpm,
-        intake_t_k: air_t_k,
+        intake_t_k: ivc_t_k,
         intake_p_pa,
         wall_t_k,
         heat_transfer: calibration::WALL_HEAT_TRANSFER,
@@ -765,7 +882,7 @@ fn heat_budget(
         crankcase_p_pa: intake_p_pa,
     };
     let (ideal_end_t_k, _) = air::isentropic_compression(
-        air_t_k,
+        ivc_t_k,
         intake_p_pa,
         engine.geometry.effective_compression_ratio(),
     )?;
@@ -807,8 +924,17 @@ fn heat_budget(
             flow_kg_s,
             air::cp_j_per_kg_k(air_t_k),
         )?;
+        // The heated air passes the same port and cylinder walls: cold walls take part of it back.
+        let heated_ivc_t_k = induction::ivc_charge(
+            &engine.geometry,
+            crank_rpm,
+            (air_t_k + rise_k).min(400.0),
+            intake_p_pa,
+            wall_t_k,
+        )?
+        .ivc_t_k;
         let heated = compression::compress(&CompressionInput {
-            intake_t_k: air_t_k + rise_k,
+            intake_t_k: heated_ivc_t_k,
             ..with_leak
         })?;
         let heated_t_k = charge_t_k(&heated, engine.combustion);
@@ -845,6 +971,7 @@ fn heat_budget(
     )?;
     Ok(HeatBudget {
         intake_t_k: air_t_k,
+        ivc_t_k,
         ideal_end_t_k,
         wall_loss_k,
         leakage_loss_k,

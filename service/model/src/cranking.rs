@@ -61,7 +61,7 @@ const STARTER_LOSS_TORQUE_SHARE: f64 = 0.03;
 
 /// Petroff (hydrodynamic) friction constant: mep_v / (μ n s), dimensionless (**estimate**,
 /// calibrated as the module doc says).
-pub const PETROFF_MEP_CONSTANT: f64 = 70_000.0;
+pub const PETROFF_MEP_CONSTANT: f64 = 40_000.0;
 /// Boundary/mixed friction mean effective pressure at cranking for 0.5 L cylinders, Pa (**estimate**).
 pub const BOUNDARY_FRICTION_MEP_PA: f64 = 1.2e5;
 /// Share of the compression work lost per cycle at cranking (**estimate**).

@@ -22,6 +22,7 @@ pub mod air;
 pub mod compression;
 pub mod geometry;
 pub mod heat_transfer;
+pub mod induction;
 pub mod leakage;
 
 // Overnight soak and cranking.

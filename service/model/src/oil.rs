@@ -32,7 +32,7 @@
 //! **Units.** Temperatures in K, dynamic viscosity in Pa·s, kinematic viscosity in mm²/s (the unit the
 //! Walther constants are defined in; 1 mm²/s = 1e-6 m²/s).
 //!
-//! **Validity.** Oil temperature 223.15–423.15 K (−50 to +150 °C). Below a grade's CCS temperature the
+//! **Validity.** Oil temperature 183.15–423.15 K (−90 to +150 °C). Below a grade's CCS temperature the
 //! line is an extrapolation. Because every grade is pinned to its CCS *limit*, two grades that share a W
 //! rating cross at the CCS temperature: below it the one with the lower hot grade comes out slightly
 //! thicker. Real oils sit below their CCS limit by unknown amounts, so their order there is not known;
@@ -49,8 +49,9 @@ pub const OIL_DENSITY_KG_PER_M3: f64 = 870.0;
 /// (KV40 ≈ 100, KV100 ≈ 11 mm²/s gives B ≈ 3.59).
 pub const MONOGRADE_WALTHER_B: f64 = 3.6;
 
-/// Lowest oil temperature the model accepts, K (−50 °C).
-pub const OIL_T_MIN_K: f64 = 223.15;
+/// Lowest oil temperature the model accepts, K (−90 °C, the telemetry range: far below any CCS
+/// point the Walther line is an extrapolation that only has to say "too thick to crank").
+pub const OIL_T_MIN_K: f64 = 183.15;
 /// Highest oil temperature the model accepts, K (+150 °C).
 pub const OIL_T_MAX_K: f64 = 423.15;
 
@@ -270,7 +271,7 @@ pub fn dynamic_viscosity_pa_s(grade: SaeGrade, oil_t_k: f64) -> Result<f64, Mode
         oil_t_k,
         OIL_T_MIN_K,
         OIL_T_MAX_K,
-        "oil viscosity model covers −50 to +150 °C",
+        "oil viscosity model covers −90 to +150 °C",
     )?;
     let line = walther_line(grade)?;
     Ok(line.kinematic_viscosity_mm2_per_s(oil_t_k) * 1e-6 * OIL_DENSITY_KG_PER_M3)
@@ -459,7 +460,7 @@ mod tests {
             -1.0,
             0.0,
             100.0,
-            222.0,
+            183.0,
             424.0,
             1e300,
         ] {

@@ -94,6 +94,7 @@ fn archetype_info(a: &Archetype) -> pb::ArchetypeInfo {
         engine: Some(engine),
         aids: Some(aids),
         unassisted_limit_c,
+        aided_limit_c: assess::unassisted::aided_limit_k(a).map_or(f64::NAN, kelvin_to_celsius),
     }
 }
 
@@ -206,6 +207,29 @@ pub fn thresholds(t: &OutlookThresholds) -> Vec<pb::OutlookThreshold> {
 }
 
 /// The DescribeModel answer (computed on first use, then cached).
+/// The calibration anchors as computed by this model (a model error is shown in the row, not
+/// hidden: the built-in archetypes always compute).
+fn anchors() -> Vec<pb::CalibrationAnchor> {
+    match assess::unassisted::anchor_rows() {
+        Ok(rows) => rows
+            .into_iter()
+            .map(|r| pb::CalibrationAnchor {
+                anchor: r.anchor.to_string(),
+                published: r.published.to_string(),
+                source: r.source.to_string(),
+                role: r.role.to_string(),
+                model: r.model,
+            })
+            .collect(),
+        Err(e) => vec![pb::CalibrationAnchor {
+            anchor: "anchor table".into(),
+            model: format!("not computed: {e}"),
+            ..Default::default()
+        }],
+    }
+}
+
+/// The DescribeModel answer (computed once).
 pub fn describe_model() -> pb::DescribeModelResponse {
     static CELL: OnceLock<pb::DescribeModelResponse> = OnceLock::new();
     cached(&CELL, || pb::DescribeModelResponse {
@@ -223,5 +247,6 @@ pub fn describe_model() -> pb::DescribeModelResponse {
         fuel_grades: fuel_grades(),
         default_delay_correlation: pb::DelayCorrelation::ChemistryFit as i32,
         outlook_thresholds: thresholds(&OutlookThresholds::default()),
+        anchors: anchors(),
     })
 }

@@ -1,16 +1,20 @@
-//! Actions that raise the start margin or remove a hard failure, each found by running the model
-//! with the action applied (model.md §8): its expected effect on the margin, its timing, the
-//! energy it uses and any safety caution. The block-heater plug-in time is found by root finding
-//! on the soak-and-start model: the latest plug-in time whose margin still meets the margin that
-//! corresponds to the target no-start probability.
+//! Actions that lower tonight's no-start probability, each found by running the model with the
+//! action applied (model.md §8): the no-start probability it achieves, its effect on the binding
+//! margin, its own act-by time, the energy it uses and any safety caution. Actions that can be done
+//! tonight are ranked by the probability they achieve; what cannot be done tonight (an oil change,
+//! a winter grade at the next fill, fitting a fuel heater) is listed apart, after them.
+//!
+//! The block-heater plug-in time is found by bisection on the full no-start probability: the
+//! latest plug-in time whose probability still meets the operator's target. When even plugging in
+//! at once does not meet it, the advice is "plug in now", with the best probability it reaches.
 //!
 //! Safety cautions are the usual ones of the trade (common practice, no source) and always defer
 //! to the vehicle and equipment manufacturer, local electrical codes and licensed practice.
 
-use super::uncertainty::{MODEL_MARGIN_SIGMA_K, normal_cdf};
-use super::{Assessment, COMFORT_MARGIN_K, LimitingFactor, VehicleNight, assess};
-use crate::aids;
-use crate::error::ModelError;
+use super::uncertainty::{Method, NoStartProbability, no_start_probability_from};
+use super::{Assessment, FailureMode, LimitingFactor, VehicleNight, assess};
+use crate::error::{ModelError, check_range};
+use crate::fuel::{AdditiveTreatment, FuelBase};
 use crate::gel_risk::{self, FuelAdvice, FuelAdviceKind};
 use crate::oil::SaeGrade;
 
@@ -30,7 +34,7 @@ pub const OIL_CAUTION: &str = "Use only an oil grade and specification the engin
 pub const FUEL_CAUTION: &str = "Add additives and No. 1 diesel or kerosene only as the fuel and engine makers allow, at the stated treat rate, with no smoking or open flame nearby.";
 
 /// What an action is.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum ActionKind {
     /// Plug in the block heater by a time.
     PlugInBlockHeater,
@@ -50,7 +54,7 @@ pub enum ActionKind {
     BlendNo1,
     /// Fill with a winter grade at the next fill.
     WinterFuel,
-    /// Warm the fuel before departure.
+    /// Fit a fuel or filter heater.
     WarmFuel,
     /// Park sheltered from wind and sky.
     ParkSheltered,
@@ -63,30 +67,53 @@ pub struct Action {
     pub kind: ActionKind,
     /// One-line instruction.
     pub summary: String,
-    /// Expected change of the margin, K.
+    /// No-start probability tonight with this action done (0..1); for actions that cannot be
+    /// done tonight, the probability a night like this one would have with it.
+    pub no_start_after: f64,
+    /// Change of the charge-temperature margin, K.
     pub expected_margin_gain_k: f64,
-    /// Latest time to act, s (None when timing does not matter).
+    /// Latest time to act, s (None only for actions that cannot be done tonight).
     pub act_by_s: Option<f64>,
     /// Energy used, J.
     pub energy_j: f64,
     /// Safety caution, when the action can hurt someone.
     pub caution: Option<&'static str>,
-    /// Removes a hard failure (frozen battery, slow cranking, waxed fuel).
+    /// Turns tonight's verdict from "no start" into "start".
     pub fixes_hard_failure: bool,
+    /// Can be done tonight (false: at the next service, fill or workshop visit).
+    pub tonight: bool,
 }
 
 /// What the operator wants from the actions.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ActionPolicy {
-    /// No-start probability the actions aim to reach at departure.
+    /// No-start probability the actions aim to reach at departure (0 < target < 1).
     pub target_probability: f64,
+    /// How probabilities are computed.
+    pub method: Method,
 }
 
 impl Default for ActionPolicy {
     fn default() -> Self {
         Self {
             target_probability: 0.05,
+            method: Method::SigmaPoints,
         }
+    }
+}
+
+impl ActionPolicy {
+    /// Checks the target: a probability strictly between 0 and 1.
+    pub fn validate(&self) -> Result<(), ModelError> {
+        let t = self.target_probability;
+        if !(t.is_finite() && t > 0.0 && t < 1.0) {
+            return Err(ModelError::OutOfRange {
+                quantity: "target_no_start_probability",
+                value: t,
+                reason: "the target must lie strictly between 0 and 100 %",
+            });
+        }
+        Ok(())
     }
 }
 
@@ -95,7 +122,7 @@ pub fn normal_quantile(p: f64) -> f64 {
     let (mut lo, mut hi) = (-10.0, 10.0);
     for _ in 0..60 {
         let mid = 0.5 * (lo + hi);
-        if normal_cdf(mid) < p {
+        if super::uncertainty::normal_cdf(mid) < p {
             lo = mid
         } else {
             hi = mid
@@ -104,23 +131,30 @@ pub fn normal_quantile(p: f64) -> f64 {
     0.5 * (lo + hi)
 }
 
-/// Margin that meets the target probability under the model's own error alone, K.
-pub fn target_margin_k(policy: &ActionPolicy) -> f64 {
-    MODEL_MARGIN_SIGMA_K * normal_quantile(1.0 - policy.target_probability)
+/// A night with a change applied, assessed and its probability computed.
+struct Outcome {
+    assessment: Assessment,
+    probability: NoStartProbability,
 }
 
-fn margin_with(
+fn outcome_with(
     night: &VehicleNight,
+    method: Method,
     change: impl FnOnce(&mut VehicleNight),
-) -> Result<Assessment, ModelError> {
+) -> Result<Outcome, ModelError> {
     let mut n = night.clone();
     n.options.include_margin_path = false;
     change(&mut n);
-    assess(&n)
+    let assessment = assess(&n)?;
+    let probability = no_start_probability_from(&n, &assessment, method)?;
+    Ok(Outcome {
+        assessment,
+        probability,
+    })
 }
 
 /// Where the night starts on the model's time axis (telemetry time or forecast start).
-fn night_start_s(night: &VehicleNight) -> f64 {
+pub fn night_start_s(night: &VehicleNight) -> f64 {
     match night.telemetry.observed_at_s {
         Some(t)
             if night.telemetry.coolant_t_k.is_some()
@@ -133,178 +167,250 @@ fn night_start_s(night: &VehicleNight) -> f64 {
     }
 }
 
-/// Block heater: latest plug-in time at which the vehicle still starts with `target_margin_k`, by
-/// bisection on the plug-in time (a later plug-in never raises the margin: tested).
-pub fn latest_plug_in_s(
+/// The block-heater plan the search found.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct HeaterPlan {
+    /// Plug in at this time, s (the night's start when the target cannot be met).
+    pub plug_in_s: f64,
+    /// No-start probability without the heater.
+    pub p_without: f64,
+    /// No-start probability with the heater from `plug_in_s`.
+    pub p_with: f64,
+    /// Charge-temperature margin without the heater, K.
+    pub margin_without_k: f64,
+    /// Charge-temperature margin with the heater from `plug_in_s`, K.
+    pub margin_with_k: f64,
+    /// The plan meets the target (false: "plug in now" is the best there is).
+    pub meets_target: bool,
+    /// The heater turns tonight's verdict into a start.
+    pub fixes_verdict: bool,
+}
+
+/// Halvings of the plug-in search: a night of about 14 h resolves to under a minute.
+const PLUG_IN_HALVINGS: u32 = 10;
+
+/// Block heater: the latest plug-in time whose no-start probability meets the target, by
+/// bisection on the plug-in time (a later plug-in never lowers the probability: tested). `None`
+/// when the vehicle has no heater or meets the target without one.
+pub fn plan_block_heater(
     night: &VehicleNight,
-    target_margin_k: f64,
-) -> Result<Option<(f64, f64)>, ModelError> {
+    policy: &ActionPolicy,
+) -> Result<Option<HeaterPlan>, ModelError> {
+    policy.validate()?;
     if night.aids.block_heater_w <= 0.0 {
         return Ok(None);
     }
+    let target = policy.target_probability;
     let start_s = night_start_s(night);
     let dep_s = night.departure_s;
-    // A plan is good enough when the vehicle is expected to start (the warm oil also speeds
-    // cranking) with the target margin.
-    let good = |a: &Assessment| a.start_expected && a.margin_k >= target_margin_k;
-    let plugged_at = |t: f64| margin_with(night, |n| n.block_heater_plan = Some((t, dep_s)));
-    if good(&margin_with(night, |n| n.block_heater_plan = None)?) {
-        // The target is met without the heater: no plug-in needed.
+    let without = outcome_with(night, policy.method, |n| n.block_heater_plan = None)?;
+    if without.probability.probability <= target {
         return Ok(None);
     }
+    let plugged_at = |t: f64| {
+        outcome_with(night, policy.method, |n| {
+            n.block_heater_plan = Some((t, dep_s))
+        })
+    };
+    let plan = |t: f64, with: &Outcome, meets_target: bool| HeaterPlan {
+        plug_in_s: t,
+        p_without: without.probability.probability,
+        p_with: with.probability.probability,
+        margin_without_k: without.assessment.margin_k,
+        margin_with_k: with.assessment.margin_k,
+        meets_target,
+        fixes_verdict: !without.assessment.start_expected && with.assessment.start_expected,
+    };
     let all_night = plugged_at(start_s)?;
-    if !good(&all_night) {
-        // Even all night is not enough: plug in now for the most it can give.
-        return Ok(Some((start_s, all_night.margin_k)));
+    if all_night.probability.probability > target {
+        return Ok(Some(plan(start_s, &all_night, false)));
     }
-    let (mut early, mut late) = (start_s, dep_s);
-    // 16 halvings of a night of ~15 h resolve about 1 minute.
-    for _ in 0..16 {
+    let (mut early, mut early_outcome, mut late) = (start_s, all_night, dep_s);
+    for _ in 0..PLUG_IN_HALVINGS {
         let mid = 0.5 * (early + late);
-        if good(&plugged_at(mid)?) {
-            early = mid
+        let o = plugged_at(mid)?;
+        if o.probability.probability <= target {
+            (early, early_outcome) = (mid, o);
         } else {
-            late = mid
+            late = mid;
         }
     }
-    Ok(Some((early, plugged_at(early)?.margin_k)))
+    Ok(Some(plan(early, &early_outcome, true)))
 }
 
-/// Recommends actions for an assessed night, most useful first.
+fn hours_minutes(s: f64) -> String {
+    let minutes = (s / 60.0).round().max(0.0) as i64;
+    format!("{} h {:02} min", minutes / 60, minutes % 60)
+}
+
+/// Recommends actions for an assessed night: tonight's first, ranked by the no-start probability
+/// each achieves, then what can only be done later. `p` is the night's probability, `heater` the
+/// result of [`plan_block_heater`].
 pub fn recommend(
     night: &VehicleNight,
     a: &Assessment,
+    p: &NoStartProbability,
+    heater: Option<&HeaterPlan>,
     policy: &ActionPolicy,
     out: &mut Vec<Action>,
 ) -> Result<(), ModelError> {
-    let target_k = target_margin_k(policy);
-    let base = a.margin_k;
-    let needs_help = !a.start_expected || base < target_k.max(COMFORT_MARGIN_K);
-    let has_ignition_aids = night.aids.glow_plugs.is_some() || night.aids.intake_heater_w > 0.0;
+    policy.validate()?;
+    out.clear();
+    let method = policy.method;
+    let base_k = a.margin_k;
+    let dep_s = night.departure_s;
+    let needs_help =
+        p.probability > policy.target_probability || a.limiting_factor != LimitingFactor::None;
+    let action = |kind, summary: String, o: &Outcome, act_by_s, caution, tonight| Action {
+        kind,
+        summary,
+        no_start_after: o.probability.probability,
+        expected_margin_gain_k: o.assessment.margin_k - base_k,
+        act_by_s,
+        energy_j: 0.0,
+        caution: Some(caution),
+        fixes_hard_failure: !a.start_expected && o.assessment.start_expected,
+        tonight,
+    };
+    let helps = |o: &Outcome| o.probability.probability < p.probability - 1e-4;
 
-    if a.cranking.result.battery_frozen {
-        out.push(Action {
-            kind: ActionKind::ThawBattery,
-            summary: "Battery electrolyte is frozen: thaw it (or fit a charged battery) before any start attempt.".into(),
-            expected_margin_gain_k: 0.0,
-            act_by_s: Some(night.departure_s),
-            energy_j: 0.0,
-            caution: Some(FROZEN_BATTERY_CAUTION),
-            fixes_hard_failure: true,
-        });
+    if a.cranking.result.battery_frozen || p.binding == FailureMode::FrozenBattery && needs_help {
+        let o = outcome_with(night, method, |n| {
+            n.telemetry.battery_rest_v = None;
+            n.battery.state_of_charge = Some(1.0);
+        })?;
+        out.push(action(
+            ActionKind::ThawBattery,
+            "The battery is frozen or close to freezing: bring it (or the vehicle) somewhere warm to thaw, then charge it fully, or fit a charged battery.".into(),
+            &o,
+            Some(dep_s - 4.0 * 3600.0),
+            FROZEN_BATTERY_CAUTION,
+            true,
+        ));
     }
     if needs_help {
-        if let Some((plug_s, margin_k)) = latest_plug_in_s(night, target_k)? {
-            let planned = margin_with(night, |n| {
-                n.block_heater_plan = Some((plug_s, n.departure_s))
-            })?;
-            let energy_j = night.aids.block_heater_w * (night.departure_s - plug_s).max(0.0);
-            let all_night_j =
-                night.aids.block_heater_w * (night.departure_s - night_start_s(night)).max(0.0);
+        if let Some(h) = heater {
+            let energy_j = night.aids.block_heater_w * (dep_s - h.plug_in_s).max(0.0);
+            let lead = hours_minutes(dep_s - h.plug_in_s);
+            let summary = if h.meets_target {
+                format!(
+                    "Plug in the block heater at least {lead} before departure ({:.1} kWh on a timer from then); that brings the no-start risk to {:.1} %.",
+                    energy_j / 3.6e6,
+                    h.p_with * 100.0
+                )
+            } else {
+                format!(
+                    "Plug in the block heater now and leave it on until departure ({:.1} kWh): the best it can do tonight is {:.1} % no-start risk; combine it with the other actions.",
+                    energy_j / 3.6e6,
+                    h.p_with * 100.0
+                )
+            };
             out.push(Action {
                 kind: ActionKind::PlugInBlockHeater,
-                summary: format!(
-                    "Plug in the block heater by the time given ({:.1} kWh on a timer from then, {:.1} kWh all night).",
-                    energy_j / 3.6e6, all_night_j / 3.6e6
-                ),
-                expected_margin_gain_k: margin_k - base,
-                act_by_s: Some(plug_s),
+                summary,
+                no_start_after: h.p_with,
+                expected_margin_gain_k: h.margin_with_k - base_k,
+                act_by_s: Some(h.plug_in_s),
                 energy_j,
                 caution: Some(CORD_CAUTION),
-                fixes_hard_failure: !a.start_expected && planned.start_expected,
+                fixes_hard_failure: !a.start_expected && h.fixes_verdict,
+                tonight: true,
             });
         }
         if let Some(g) = night.aids.glow_plugs {
             if !(g.relay_ok && g.plugs_ok) {
-                let fixed = margin_with(night, |n| {
+                let o = outcome_with(night, method, |n| {
                     if let Some(p) = n.aids.glow_plugs.as_mut() {
                         p.relay_ok = true;
                         p.plugs_ok = true;
                     }
                 })?;
-                out.push(Action {
-                    kind: ActionKind::RepairGlowPlugs,
-                    summary: "Repair the glow-plug relay or plugs before the cold morning; the engine starts unassisted until then.".into(),
-                    expected_margin_gain_k: fixed.margin_k - base,
-                    act_by_s: Some(night.departure_s),
-                    energy_j: 0.0,
-                    caution: Some(STARTING_FLUID_CAUTION),
-                    fixes_hard_failure: false,
-                });
+                out.push(action(
+                    ActionKind::RepairGlowPlugs,
+                    "Repair the glow-plug relay or plugs before departure; until then the engine starts unassisted.".into(),
+                    &o,
+                    Some(dep_s),
+                    STARTING_FLUID_CAUTION,
+                    true,
+                ));
             } else {
                 let full_s = 3.0 * g.preheat_time_constant_s;
                 if night.aids.glow_preheat_s < full_s {
-                    let gain = aids::glow_plug_gain_k(&g, full_s)?
-                        - aids::glow_plug_gain_k(&g, night.aids.glow_preheat_s)?;
-                    if gain > 1.0 {
-                        out.push(Action {
-                            kind: ActionKind::ExtendPreheat,
-                            summary: format!("Preheat at least {full_s:.0} s (wait for the lamp, cycle it twice in deep cold)."),
-                            expected_margin_gain_k: gain,
-                            act_by_s: None,
-                            energy_j: 0.0,
-                            caution: Some(STARTING_FLUID_CAUTION),
-                            fixes_hard_failure: false,
-                        });
+                    let o = outcome_with(night, method, |n| n.aids.glow_preheat_s = full_s)?;
+                    if helps(&o) {
+                        out.push(action(
+                            ActionKind::ExtendPreheat,
+                            format!("At the start, preheat at least {full_s:.0} s (wait for the lamp; cycle it twice in deep cold)."),
+                            &o,
+                            Some(dep_s),
+                            STARTING_FLUID_CAUTION,
+                            true,
+                        ));
                     }
                 }
             }
         }
         if !a.cranking.result.battery_frozen
-            && (a.state_of_charge < 0.8 || a.limiting_factor == LimitingFactor::SlowCranking)
+            && (a.state_of_charge < 0.8
+                || matches!(
+                    p.binding,
+                    FailureMode::CrankingSpeed | FailureMode::FrozenBattery
+                ))
         {
-            let charged = margin_with(night, |n| {
+            let o = outcome_with(night, method, |n| {
                 n.telemetry.battery_rest_v = None;
                 n.battery.state_of_charge = Some(1.0);
             })?;
-            out.push(Action {
-                kind: ActionKind::ChargeBattery,
-                summary: if night.telemetry.battery_rest_v.is_some() || night.battery.state_of_charge.is_some() {
-                    format!("Charge the battery tonight (now at {:.0} %) or fit a charged one.", a.state_of_charge * 100.0)
-                } else {
-                    format!("Check and charge the battery tonight (charge unknown, {:.0} % assumed) or fit a charged one.", a.state_of_charge * 100.0)
-                },
-                expected_margin_gain_k: charged.margin_k - base,
-                act_by_s: Some(night.departure_s - 4.0 * 3600.0),
-                energy_j: 0.0,
-                caution: Some(CHARGE_CAUTION),
-                fixes_hard_failure: a.limiting_factor == LimitingFactor::SlowCranking && charged.start_expected,
-            });
+            if helps(&o) {
+                let known = night.telemetry.battery_rest_v.is_some()
+                    || night.battery.state_of_charge.is_some();
+                out.push(action(
+                    ActionKind::ChargeBattery,
+                    if known {
+                        format!("Charge the battery tonight (now at {:.0} %) or fit a charged one, at least 4 h before departure.", a.state_of_charge * 100.0)
+                    } else {
+                        format!("Check and charge the battery tonight (charge unknown, {:.0} % assumed) or fit a charged one, at least 4 h before departure.", a.state_of_charge * 100.0)
+                    },
+                    &o,
+                    Some(dep_s - 4.0 * 3600.0),
+                    CHARGE_CAUTION,
+                    true,
+                ));
+            }
+        }
+        if !night.sheltered {
+            let o = outcome_with(night, method, |n| n.sheltered = true)?;
+            if helps(&o) {
+                out.push(action(
+                    ActionKind::ParkSheltered,
+                    "Park in an open-sided shed or behind a wind break tonight.".into(),
+                    &o,
+                    Some(night_start_s(night)),
+                    IDLING_CAUTION,
+                    true,
+                ));
+            }
         }
         if night.oil.winter.is_none_or(|w| w >= 15) {
             let lighter = SaeGrade {
                 winter: Some(5),
                 hot: if night.oil.hot >= 40 { 40 } else { 30 },
             };
-            let with = margin_with(night, |n| n.oil = lighter)?;
-            if with.cranking.result.crank_rpm > a.cranking.result.crank_rpm + 5.0 {
-                out.push(Action {
-                    kind: ActionKind::LighterOil,
-                    summary: format!("At the next service use {}W-{} if the engine maker approves it (cranks {:.0} rpm faster).", 5, lighter.hot, with.cranking.result.crank_rpm - a.cranking.result.crank_rpm),
-                    expected_margin_gain_k: with.margin_k - base,
-                    act_by_s: None,
-                    energy_j: 0.0,
-                    caution: Some(OIL_CAUTION),
-                    fixes_hard_failure: a.limiting_factor == LimitingFactor::SlowCranking && with.start_expected,
-                });
+            let o = outcome_with(night, method, |n| n.oil = lighter)?;
+            if o.assessment.cranking.result.crank_rpm > a.cranking.result.crank_rpm + 5.0 {
+                out.push(action(
+                    ActionKind::LighterOil,
+                    format!(
+                        "At the next service use 5W-{} if the engine maker approves it: it cranks {:.0} rpm faster on a night like this.",
+                        lighter.hot,
+                        o.assessment.cranking.result.crank_rpm - a.cranking.result.crank_rpm
+                    ),
+                    &o,
+                    None,
+                    OIL_CAUTION,
+                    false,
+                ));
             }
-        }
-        if !night.sheltered {
-            let with = margin_with(night, |n| n.sheltered = true)?;
-            if with.margin_k - base > 1.0 {
-                out.push(Action {
-                    kind: ActionKind::ParkSheltered,
-                    summary: "Park in an open-sided shed or behind a wind break tonight.".into(),
-                    expected_margin_gain_k: with.margin_k - base,
-                    act_by_s: Some(night_start_s(night)),
-                    energy_j: 0.0,
-                    caution: Some(IDLING_CAUTION),
-                    fixes_hard_failure: false,
-                });
-            }
-        }
-        if has_ignition_aids && base < 0.0 {
-            // Already carried by the aid actions; nothing more to add.
         }
     }
     let mut fuel = Vec::new();
@@ -315,37 +421,87 @@ pub fn recommend(
         None,
         &mut fuel,
     )?;
-    out.extend(fuel.iter().map(|f| fuel_action(f, a)));
+    for f in &fuel {
+        if let Some(x) = fuel_action(night, a, f, heater.is_some(), method)?
+            && !out.iter().any(|y| y.kind == x.kind)
+        {
+            out.push(x);
+        }
+    }
+    // Tonight's actions first, each group by the probability it achieves (then by energy).
     out.sort_by(|x, y| {
-        y.fixes_hard_failure.cmp(&x.fixes_hard_failure).then(
-            y.expected_margin_gain_k
-                .total_cmp(&x.expected_margin_gain_k),
-        )
+        y.tonight
+            .cmp(&x.tonight)
+            .then(x.no_start_after.total_cmp(&y.no_start_after))
+            .then(x.energy_j.total_cmp(&y.energy_j))
     });
     Ok(())
 }
 
-fn fuel_action(f: &FuelAdvice, a: &Assessment) -> Action {
-    let kind = match f.kind {
-        FuelAdviceKind::TreatWithAdditiveNow => ActionKind::TreatFuel,
-        FuelAdviceKind::BlendNo1 => ActionKind::BlendNo1,
-        FuelAdviceKind::SwitchToWinterGrade => ActionKind::WinterFuel,
-        FuelAdviceKind::WarmFuel => ActionKind::WarmFuel,
-        FuelAdviceKind::ParkSheltered => ActionKind::ParkSheltered,
+/// The fuel temperature now, K: the latest reading, else the forecast's first step.
+fn fuel_now_t_k(night: &VehicleNight) -> f64 {
+    night
+        .telemetry
+        .fuel_t_k
+        .or_else(|| night.forecast.hours.first().map(|h| h.air_t_k))
+        .unwrap_or(273.15)
+}
+
+fn fuel_action(
+    night: &VehicleNight,
+    a: &Assessment,
+    f: &FuelAdvice,
+    has_block_heater: bool,
+    method: Method,
+) -> Result<Option<Action>, ModelError> {
+    let d = night.fuel.description;
+    let (kind, tonight, caution) = match f.kind {
+        FuelAdviceKind::TreatWithAdditiveNow => (ActionKind::TreatFuel, true, FUEL_CAUTION),
+        FuelAdviceKind::BlendNo1 => (ActionKind::BlendNo1, true, FUEL_CAUTION),
+        FuelAdviceKind::SwitchToWinterGrade => (ActionKind::WinterFuel, false, FUEL_CAUTION),
+        // A block heater already keeps an engine-mounted filter warm: that action covers it.
+        FuelAdviceKind::WarmFuel if has_block_heater => return Ok(None),
+        FuelAdviceKind::WarmFuel => (ActionKind::WarmFuel, false, CORD_CAUTION),
+        FuelAdviceKind::ParkSheltered => (ActionKind::ParkSheltered, true, IDLING_CAUTION),
     };
-    Action {
+    let o = outcome_with(night, method, |n| match f.kind {
+        FuelAdviceKind::TreatWithAdditiveNow => {
+            n.fuel.description.additive = Some(AdditiveTreatment::typical(
+                check_range("fuel_t_k", fuel_now_t_k(night), 183.15, 323.15, "").unwrap_or(273.15),
+            ));
+        }
+        FuelAdviceKind::BlendNo1 => {
+            if let Some(share) = f.suggested_no1_blend_fraction {
+                n.fuel.description.no1_blend_fraction = share;
+            }
+        }
+        FuelAdviceKind::SwitchToWinterGrade => {
+            if let Some(g) = f.suggested_grade {
+                n.fuel.description = crate::fuel::FuelDescription {
+                    base: FuelBase::Grade(g),
+                    ..d
+                };
+            }
+        }
+        // A filter heater keeps the filter at least as warm as an engine-bay mount would.
+        FuelAdviceKind::WarmFuel => n.fuel.filter_mount = crate::soak::FilterMount::EngineBay,
+        FuelAdviceKind::ParkSheltered => n.sheltered = true,
+    })?;
+    Ok(Some(Action {
         kind,
         summary: f.note.to_string(),
-        expected_margin_gain_k: 0.0,
-        act_by_s: f.act_before_s,
+        no_start_after: o.probability.probability,
+        expected_margin_gain_k: o.assessment.margin_k - a.margin_k,
+        act_by_s: if tonight {
+            Some(f.act_before_s.unwrap_or(night.departure_s))
+        } else {
+            None
+        },
         energy_j: 0.0,
-        caution: Some(match kind {
-            ActionKind::WarmFuel => CORD_CAUTION,
-            ActionKind::ParkSheltered => IDLING_CAUTION,
-            _ => FUEL_CAUTION,
-        }),
-        fixes_hard_failure: a.gel.blocks_start,
-    }
+        caution: Some(caution),
+        fixes_hard_failure: !a.start_expected && o.assessment.start_expected,
+        tonight,
+    }))
 }
 
 #[cfg(test)]

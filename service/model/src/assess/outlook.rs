@@ -56,6 +56,11 @@ impl OutlookThresholds {
         if !(ok(self.watch_from) && ok(self.at_risk_from) && ok(self.no_start_from)) {
             return Err("outlook thresholds must be probabilities between 0 and 1");
         }
+        if self.no_start_from != 0.5 {
+            // "No start expected" means a no-start is more likely than not: it must agree with the
+            // sign of the binding margin (see `uncertainty`), so it is not a free threshold.
+            return Err("the no-start-expected threshold is fixed at 50 %");
+        }
         if !(self.watch_from <= self.at_risk_from && self.at_risk_from <= self.no_start_from) {
             return Err("outlook thresholds must satisfy watch <= at_risk <= no_start");
         }

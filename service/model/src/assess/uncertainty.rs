@@ -7,18 +7,21 @@
 //! 4 °C, reference.md §9.1, cold-flow.eu, confirmed: σ ≈ 2 K). The model's own structural error is
 //! a further normal term on the margin ([`MODEL_MARGIN_SIGMA_K`]), applied analytically.
 //!
-//! For each perturbed input set the model gives either a hard failure (frozen battery, cranking
-//! below the minimum starting speed, fuel that will not pass the filter: probability 1) or a margin
-//! m, whose no-start probability is Φ(−m/σ_model). The no-start probability is the expectation of
-//! that smooth function over the inputs, computed by:
-//! - [`Method::SigmaPoints`] (default): the unscented transform, 2d + 1 = 9 model runs, weights of
-//!   Julier & Uhlmann (1997) with κ = 3 − d (*from memory*);
+//! Every failure mode has its own margin in its own unit ([`super::ModeMargins`]: charge K,
+//! cranking rpm, battery K above freezing, fuel K above CFPP/pour point) and its own model error
+//! ([`FailureMode::model_sigma`]). Each mode's margin is treated as normal around the central
+//! assessment's value with spread S = √(σ_model² + Var_inputs), so its no-start probability is
+//! Φ(−m/S) (first-order second-moment reliability); the night's probability is the binding mode's
+//! (see [`no_start_probability_from`]). The input variance comes from:
+//! - [`Method::SigmaPoints`] (default): central differences along each input axis at ±√3 σ (the
+//!   unscented points of Julier & Uhlmann 1997 with κ = 3 − d, *from memory*), 2d = 8 model runs
+//!   beyond the central assessment;
 //! - [`Method::Sampling`]: plain Monte Carlo with a deterministic stream keyed by the caller, and a
 //!   reported standard error; the reference the sigma points are checked against.
 //!
 //! Deterministic: the same night and key always give the same probability.
 
-use super::{Assessment, LimitingFactor, VehicleNight, assess};
+use super::{Assessment, FailureMode, VehicleNight, assess};
 use crate::error::ModelError;
 use crate::fuel::{FuelBase, cold_flow_properties};
 
@@ -118,24 +121,58 @@ pub fn uncertainties(night: &VehicleNight) -> Uncertainties {
 /// The probability and what drives it.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct NoStartProbability {
-    /// Probability of a no-start at the departure, 0..1.
+    /// Probability of a no-start at the departure, 0..1: that of the binding failure mode.
     pub probability: f64,
-    /// Expected margin over the inputs, K.
-    pub margin_mean_k: f64,
-    /// Spread of the margin (inputs and model together), one standard deviation, K.
+    /// The failure mode with the highest no-start probability.
+    pub binding: FailureMode,
+    /// The binding mode's margin (the central assessment's), in the mode's unit.
+    pub binding_margin: f64,
+    /// Spread of the binding mode's margin (inputs and model together), one standard deviation,
+    /// in the mode's unit.
+    pub binding_spread: f64,
+    /// No-start probability of each mode, in [`FailureMode::ALL`] order.
+    pub mode_probabilities: [f64; 4],
+    /// Spread of each mode's margin (inputs and model), in [`FailureMode::ALL`] order.
+    pub mode_spreads: [f64; 4],
+    /// Spread of the charge-temperature margin (inputs and model together), one standard
+    /// deviation, K.
     pub margin_spread_k: f64,
-    /// The source that moves the outcome most.
+    /// The input that moves the binding mode most.
     pub dominant: UncertaintySource,
     /// Standard error of the probability estimate (sampling only; 0 for sigma points).
     pub standard_error: f64,
-    /// Model runs used.
+    /// Model runs used beyond the central assessment.
     pub model_runs: u32,
 }
 
+impl NoStartProbability {
+    /// No-start probability of one mode.
+    pub fn of_mode(&self, mode: FailureMode) -> f64 {
+        self.mode_probabilities[mode_index(mode)]
+    }
+
+    /// Spread of one mode's margin, in its unit.
+    pub fn spread_of(&self, mode: FailureMode) -> f64 {
+        self.mode_spreads[mode_index(mode)]
+    }
+}
+
+fn mode_index(mode: FailureMode) -> usize {
+    FailureMode::ALL
+        .iter()
+        .position(|&m| m == mode)
+        .unwrap_or(0)
+}
+
 /// Standard normal cumulative distribution Φ(x), by the complementary error function
-/// (Abramowitz & Stegun 7.1.26 form refined to ~1e-7; check values in the tests).
+/// (Numerical Recipes `erfcc`; check values in the tests).
 pub fn normal_cdf(x: f64) -> f64 {
     0.5 * erfc(-x / std::f64::consts::SQRT_2)
+}
+
+/// Standard normal density φ(x).
+fn normal_pdf(x: f64) -> f64 {
+    (-0.5 * x * x).exp() / (2.0 * std::f64::consts::PI).sqrt()
 }
 
 /// Complementary error function, |error| < 1.2e-7 (Numerical Recipes `erfcc`, Chebyshev fit).
@@ -202,31 +239,130 @@ fn perturbed(
     Ok(n)
 }
 
-/// Soft no-start probability of one model run.
-fn run_probability(a: &Assessment) -> f64 {
-    match a.limiting_factor {
-        LimitingFactor::FrozenBattery
-        | LimitingFactor::WaxedFuel
-        | LimitingFactor::SlowCranking
-            if !a.start_expected =>
-        {
-            1.0
-        }
-        _ => normal_cdf(-a.margin_k / MODEL_MARGIN_SIGMA_K),
-    }
-}
-
-/// No-start probability of a night (the state of charge the assessment used is `soc0`).
+/// No-start probability of a night (the state of charge the assessment used is `soc0`): runs the
+/// central assessment itself, then [`no_start_probability_from`].
 pub fn no_start_probability(
     night: &VehicleNight,
     soc0: f64,
     method: Method,
 ) -> Result<NoStartProbability, ModelError> {
     let u = uncertainties(night);
-    match method {
-        Method::SigmaPoints => sigma_points(night, &u, soc0),
-        Method::Sampling { samples, key } => sampling(night, &u, soc0, samples.max(2), key),
+    let centre = assess(&perturbed(night, &u, &Perturbation::default(), soc0)?)?;
+    no_start_probability_from(night, &centre, method)
+}
+
+/// No-start probability around an already computed central assessment `centre` of `night`.
+///
+/// First-order second-moment reliability (Cornell 1969, from memory): each mode's margin is taken
+/// as normal with the central value m and a spread S = √(σ_model² + Var_inputs); its no-start
+/// probability is Φ(−m/S), and the night's is that of the most likely mode (the modes share their
+/// driver, the cold, so the union is close to its largest member: the Fréchet lower bound). So the
+/// probability is at least 50 % exactly when the binding margin is at most zero: the verdict, the
+/// headline margin and the probability never disagree. The input variance comes from the sigma
+/// points (central differences along each input axis at ±√3 σ: exact for a margin linear in the
+/// inputs) or from keyed samples.
+pub fn no_start_probability_from(
+    night: &VehicleNight,
+    centre: &Assessment,
+    method: Method,
+) -> Result<NoStartProbability, ModelError> {
+    let u = uncertainties(night);
+    let soc0 = centre.state_of_charge;
+    let mut variance = [0.0_f64; 4];
+    let mut axis_variance = [[0.0_f64; DIMENSIONS]; 4];
+    let (runs, standard_error_scale) = match method {
+        Method::SigmaPoints => {
+            let spread = 3.0_f64.sqrt();
+            for i in 0..DIMENSIONS {
+                let plus = assess(&perturbed(night, &u, &axis(i, spread), soc0)?)?;
+                let minus = assess(&perturbed(night, &u, &axis(i, -spread), soc0)?)?;
+                for ((mode, axes), total) in FailureMode::ALL
+                    .iter()
+                    .zip(axis_variance.iter_mut())
+                    .zip(variance.iter_mut())
+                {
+                    let d = (plus.modes.get(*mode) - minus.modes.get(*mode)) / (2.0 * spread);
+                    axes[i] = d * d;
+                    *total += d * d;
+                }
+            }
+            (2 * DIMENSIONS as u32, None)
+        }
+        Method::Sampling { samples, key } => {
+            let samples = samples.max(2);
+            let mut rng = SplitMix64(key);
+            let mut sum = [0.0_f64; 4];
+            let mut sum2 = [0.0_f64; 4];
+            for _ in 0..samples {
+                let p = Perturbation {
+                    forecast: rng.normal(),
+                    charge: rng.normal(),
+                    health: rng.normal(),
+                    fuel: rng.normal(),
+                };
+                let a = assess(&perturbed(night, &u, &p, soc0)?)?;
+                for (k, mode) in FailureMode::ALL.iter().enumerate() {
+                    let m = a.modes.get(*mode);
+                    sum[k] += m;
+                    sum2[k] += m * m;
+                }
+            }
+            let n = f64::from(samples);
+            for k in 0..4 {
+                let mean = sum[k] / n;
+                variance[k] = ((sum2[k] / n - mean * mean) * n / (n - 1.0)).max(0.0);
+            }
+            (samples, Some(n))
+        }
+    };
+    let mut mode_probabilities = [0.0; 4];
+    let mut spreads = [0.0; 4];
+    for (k, mode) in FailureMode::ALL.iter().enumerate() {
+        let sigma = mode.model_sigma();
+        spreads[k] = (sigma * sigma + variance[k]).sqrt();
+        mode_probabilities[k] = normal_cdf(-centre.modes.get(*mode) / spreads[k]);
     }
+    let mut b = 0;
+    for k in 1..4 {
+        if mode_probabilities[k] > mode_probabilities[b] {
+            b = k;
+        }
+    }
+    let binding = FailureMode::ALL[b];
+    let binding_margin = centre.modes.get(binding);
+    let sigma_b = binding.model_sigma();
+    // The input that moves the binding mode most, if it moves it more than the model's own error.
+    let dominant = match method {
+        Method::SigmaPoints => {
+            let (mut best, mut best_v) = (UncertaintySource::Model, sigma_b * sigma_b);
+            for (i, &v) in axis_variance[b].iter().enumerate() {
+                if v > best_v {
+                    (best, best_v) = (source(i), v);
+                }
+            }
+            best
+        }
+        Method::Sampling { .. } => UncertaintySource::Model,
+    };
+    // Sampling: the spread's own sampling error, carried to the probability (delta method:
+    // se(Var) ≈ Var √(2/(n−1)), dp/dVar = φ(β) m / (2 S³)).
+    let standard_error = standard_error_scale.map_or(0.0, |n| {
+        let s = spreads[b];
+        let se_var = variance[b] * (2.0 / (n - 1.0)).sqrt();
+        (normal_pdf(binding_margin / s) * binding_margin.abs() / (2.0 * s * s * s)) * se_var
+    });
+    Ok(NoStartProbability {
+        probability: mode_probabilities[b].clamp(0.0, 1.0),
+        binding,
+        binding_margin,
+        binding_spread: spreads[b],
+        mode_probabilities,
+        mode_spreads: spreads,
+        margin_spread_k: spreads[mode_index(FailureMode::ChargeTemperature)],
+        dominant,
+        standard_error,
+        model_runs: runs,
+    })
 }
 
 fn axis(i: usize, s: f64) -> Perturbation {
@@ -238,58 +374,6 @@ fn axis(i: usize, s: f64) -> Perturbation {
         _ => p.fuel = s,
     }
     p
-}
-
-fn sigma_points(
-    night: &VehicleNight,
-    u: &Uncertainties,
-    soc0: f64,
-) -> Result<NoStartProbability, ModelError> {
-    // Julier–Uhlmann: κ = 3 − d, points at ±√(d + κ) = ±√3 σ, weights κ/(d+κ) and 1/(2(d+κ)).
-    let n = DIMENSIONS as f64;
-    let kappa = 3.0 - n;
-    let spread = (n + kappa).sqrt();
-    let w0 = kappa / (n + kappa);
-    let wi = 1.0 / (2.0 * (n + kappa));
-    let centre = assess(&perturbed(night, u, &Perturbation::default(), soc0)?)?;
-    let mut p = w0 * run_probability(&centre);
-    let mut mean = w0 * centre.margin_k;
-    let mut pairs = [(0.0, 0.0, 0.0, 0.0); DIMENSIONS];
-    for (i, pair) in pairs.iter_mut().enumerate() {
-        let plus = assess(&perturbed(night, u, &axis(i, spread), soc0)?)?;
-        let minus = assess(&perturbed(night, u, &axis(i, -spread), soc0)?)?;
-        p += wi * (run_probability(&plus) + run_probability(&minus));
-        mean += wi * (plus.margin_k + minus.margin_k);
-        *pair = (
-            plus.margin_k,
-            minus.margin_k,
-            run_probability(&plus),
-            run_probability(&minus),
-        );
-    }
-    let mut var = w0 * (centre.margin_k - mean).powi(2);
-    let mut dominant = (UncertaintySource::Model, 0.0_f64);
-    for (i, (mp, mm, pp, pm)) in pairs.iter().enumerate() {
-        var += wi * ((mp - mean).powi(2) + (mm - mean).powi(2));
-        // Influence: the larger of the margin swing (in model sigmas) and the probability swing.
-        let swing = ((mp - mm).abs() / (2.0 * spread * MODEL_MARGIN_SIGMA_K)).max((pp - pm).abs());
-        if swing > dominant.1 {
-            dominant = (source(i), swing);
-        }
-    }
-    let dominant = if dominant.1 > 1.0 / spread {
-        dominant.0
-    } else {
-        UncertaintySource::Model
-    };
-    Ok(NoStartProbability {
-        probability: p.clamp(0.0, 1.0),
-        margin_mean_k: mean,
-        margin_spread_k: (var + MODEL_MARGIN_SIGMA_K * MODEL_MARGIN_SIGMA_K).sqrt(),
-        dominant,
-        standard_error: 0.0,
-        model_runs: 1 + 2 * DIMENSIONS as u32,
-    })
 }
 
 fn source(i: usize) -> UncertaintySource {
@@ -320,44 +404,6 @@ impl SplitMix64 {
         let (u1, u2) = (self.uniform(), self.uniform());
         (-2.0 * u1.ln()).sqrt() * (std::f64::consts::TAU * u2).cos()
     }
-}
-
-fn sampling(
-    night: &VehicleNight,
-    u: &Uncertainties,
-    soc0: f64,
-    samples: u32,
-    key: u64,
-) -> Result<NoStartProbability, ModelError> {
-    let mut rng = SplitMix64(key);
-    let (mut sum_p, mut sum_p2, mut sum_m, mut sum_m2) = (0.0, 0.0, 0.0, 0.0);
-    for _ in 0..samples {
-        let p = Perturbation {
-            forecast: rng.normal(),
-            charge: rng.normal(),
-            health: rng.normal(),
-            fuel: rng.normal(),
-        };
-        let a = assess(&perturbed(night, u, &p, soc0)?)?;
-        let q = run_probability(&a);
-        sum_p += q;
-        sum_p2 += q * q;
-        sum_m += a.margin_k;
-        sum_m2 += a.margin_k * a.margin_k;
-    }
-    let n = f64::from(samples);
-    let p = sum_p / n;
-    let var_p = (sum_p2 / n - p * p).max(0.0) * n / (n - 1.0);
-    let mean = sum_m / n;
-    let var_m = (sum_m2 / n - mean * mean).max(0.0);
-    Ok(NoStartProbability {
-        probability: p,
-        margin_mean_k: mean,
-        margin_spread_k: (var_m + MODEL_MARGIN_SIGMA_K * MODEL_MARGIN_SIGMA_K).sqrt(),
-        dominant: UncertaintySource::Model,
-        standard_error: (var_p / n).sqrt(),
-        model_runs: samples,
-    })
 }
 
 #[cfg(test)]
