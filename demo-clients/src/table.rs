@@ -287,6 +287,6 @@ mod tests {
         assert!(lines[3].contains("error: failed precondition: forecast too short"));
         // The margin column is right-aligned: both cells end at the same character column.
         let end = |l: &str, pat: &str| l.find(pat).map(|i| l[..i + pat.len()].chars().count());
-        assert_eq!(end(lines[0], "margin K"), end(lines[3], "error"));
+        assert_eq!(end(lines[0], "binding margin"), end(lines[3], "error"));
     }
 }
