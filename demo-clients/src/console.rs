@@ -56,8 +56,9 @@ pub fn evening_text(s: &Scenario, rows: &[Row<'_>]) -> String {
     out
 }
 
-/// A depot's plug-in plan, as printed.
-pub fn plan_text(plan: &PlugInPlan) -> String {
+/// A depot's plug-in plan, as printed. `yard_no_starts` is the sum of the table's no-start
+/// probabilities over the depot's vehicles, so the totals printed here add up with the table.
+pub fn plan_text(plan: &PlugInPlan, yard_no_starts: f64) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
@@ -92,12 +93,15 @@ pub fn plan_text(plan: &PlugInPlan) -> String {
              protected outlets; follow the heater maker's instructions and local electrical codes)"
         );
     }
+    // The plan's own figures cover only the vehicles with a heater; the yard's are the table's
+    // sum less what the plan (or coldest-first) takes off it.
+    let unplugged = plan.expected_no_starts_without;
     let _ = writeln!(
         out,
-        "  expected no-starts in the yard: {:.2} unplugged, {:.2} with this plan, {:.2} plugging the coldest first",
-        plan.expected_no_starts_without,
-        plan.expected_no_starts_with,
-        plan.expected_no_starts_coldest_first
+        "  expected no-starts in the yard (the table's no-start % summed): {:.2} unplugged, {:.2} with this plan, {:.2} plugging the coldest first",
+        yard_no_starts,
+        yard_no_starts - (unplugged - plan.expected_no_starts_with),
+        yard_no_starts - (unplugged - plan.expected_no_starts_coldest_first)
     );
     out
 }
@@ -151,12 +155,12 @@ mod tests {
             exact: true,
             gap_bound: 0.0,
         };
-        let text = plan_text(&plan);
+        let text = plan_text(&plan, 3.0);
         assert!(text.contains("2 free on a 2.6 kW circuit. Plug-in plan (optimal):"));
         assert!(text.contains("PU-11   plug in by 01:30 (750 W): no-start 100.0 % -> 38.2 %"));
         assert!(text.contains("outdoor-rated cords"));
         assert!(
-            text.contains("1.83 unplugged, 1.22 with this plan, 1.50 plugging the coldest first")
+            text.contains("3.00 unplugged, 2.39 with this plan, 2.67 plugging the coldest first")
         );
     }
 }

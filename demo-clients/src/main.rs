@@ -75,8 +75,14 @@ async fn run(args: Args) -> anyhow::Result<ExitCode> {
         }
     } else {
         print!("{}", console::evening_text(&scenario, &rows));
+        let yard_no_starts: f64 = rows
+            .iter()
+            .filter(|r| !r.vehicle.night.as_pb().depot_id.is_empty())
+            .filter_map(|r| r.outcome.as_ref().ok())
+            .map(|a| a.no_start_pct / 100.0)
+            .sum();
         for plan in &fleet.plans {
-            print!("{}", console::plan_text(plan));
+            print!("{}", console::plan_text(plan, yard_no_starts));
         }
     }
 

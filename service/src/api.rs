@@ -32,9 +32,10 @@ use tokio::time::Instant;
 use tokio_stream::wrappers::ReceiverStream;
 use tokio_stream::{Stream, StreamExt as _};
 use tokio_util::sync::CancellationToken;
-use tonic::{Request, Response, Status, Streaming};
+use tonic::{Request, Response, Status};
 use tracing::{Instrument, debug, info, info_span};
 
+use crate::codec::{BadItem, Inbound};
 use crate::config::Config;
 use crate::convert::{self, MAX_ID_LEN, Policy, ZoneForecasts};
 use crate::error::{ApiError, to_rpc_status};
@@ -50,6 +51,12 @@ pub const FLEET_VEHICLE_PATH: &str = "vehicle";
 pub const FLEET_ZONE_PATH: &str = "zone_forecast";
 /// Field path prefix of a depot outlets item in an AssessFleet request.
 pub const FLEET_DEPOT_PATH: &str = "depot_outlets";
+/// Field path of an AssessFleet item as a whole (its oneof), for items that cannot be decoded.
+pub const FLEET_ITEM_PATH: &str = "item";
+/// Field path of a WatchFleet update as a whole (its oneof), for updates that cannot be decoded.
+pub const WATCH_UPDATE_PATH: &str = "update";
+/// Tag of `AssessFleetRequest.item_id`, read from an undecodable item to name it.
+const FLEET_ITEM_ID_TAG: u32 = 3;
 
 /// Message of the status that ends open streams when the server shuts down.
 pub const DRAINING_MESSAGE: &str = "server is draining";
@@ -108,9 +115,10 @@ impl StartMarginApi {
     }
 }
 
-#[tonic::async_trait]
-impl pb::start_margin_service_server::StartMarginService for StartMarginApi {
-    async fn assess_vehicle(
+/// The RPCs, called by [`crate::codec::ApiRoutes`] with the request already read.
+impl StartMarginApi {
+    /// AssessVehicle: one vehicle night.
+    pub async fn assess_vehicle(
         &self,
         request: Request<pb::AssessVehicleRequest>,
     ) -> Result<Response<pb::AssessVehicleResponse>, Status> {
@@ -156,12 +164,11 @@ impl pb::start_margin_service_server::StartMarginService for StartMarginApi {
         .inspect_err(|status| debug!(code = ?status.code(), "assess_vehicle refused"))
     }
 
-    type AssessFleetStream = FleetResponses;
-
-    async fn assess_fleet(
+    /// AssessFleet: a fleet stream, answered item by item.
+    pub async fn assess_fleet(
         &self,
-        request: Request<Streaming<pb::AssessFleetRequest>>,
-    ) -> Result<Response<Self::AssessFleetStream>, Status> {
+        request: Request<Inbound<pb::AssessFleetRequest>>,
+    ) -> Result<Response<FleetResponses>, Status> {
         let tenant = tenant_of(&request);
         let quota = self
             .quota
@@ -198,12 +205,11 @@ impl pb::start_margin_service_server::StartMarginService for StartMarginApi {
         Ok(Response::new(Box::pin(responses)))
     }
 
-    type WatchFleetStream = crate::watch::WatchResponses;
-
-    async fn watch_fleet(
+    /// WatchFleet: the pre-dawn feed.
+    pub async fn watch_fleet(
         &self,
-        request: Request<Streaming<pb::WatchFleetRequest>>,
-    ) -> Result<Response<Self::WatchFleetStream>, Status> {
+        request: Request<Inbound<pb::WatchFleetRequest>>,
+    ) -> Result<Response<crate::watch::WatchResponses>, Status> {
         let tenant = tenant_of(&request);
         let quota = self
             .quota
@@ -223,7 +229,8 @@ impl pb::start_margin_service_server::StartMarginService for StartMarginApi {
         )))
     }
 
-    async fn describe_model(
+    /// DescribeModel: the model's methods, parameters and archetypes.
+    pub async fn describe_model(
         &self,
         _request: Request<pb::DescribeModelRequest>,
     ) -> Result<Response<pb::DescribeModelResponse>, Status> {
@@ -289,7 +296,7 @@ struct FleetStream {
 }
 
 impl FleetStream {
-    async fn run(mut self, mut inbound: Streaming<pb::AssessFleetRequest>) {
+    async fn run(mut self, mut inbound: Inbound<pb::AssessFleetRequest>) {
         let mut items: u64 = 0;
         // A slot is taken before reading the next item, so an item is only read when it can run
         // and its result has a place in the output channel.
@@ -308,7 +315,15 @@ impl FleetStream {
                 message = inbound.message(), if slot.is_some() => {
                     idle.as_mut().reset(Instant::now() + self.limits.stream_idle_timeout);
                     match message {
-                        Ok(Some(request)) => {
+                        Ok(Some(Err(bad))) => {
+                            // Undecodable or over-size: answered on its own; counts as an item.
+                            items += 1;
+                            let Some(permit) = slot.take() else {
+                                break End::Abort(Status::internal("fleet item read without a slot"));
+                            };
+                            self.send_bad_item(permit, bad);
+                        }
+                        Ok(Some(Ok(request))) => {
                             items += 1;
                             if items > self.limits.max_fleet_items {
                                 break End::AfterInFlight(ApiError::ResourceExhausted(format!(
@@ -324,7 +339,7 @@ impl FleetStream {
                             }
                         }
                         Ok(None) => break End::Completed,
-                        // The client went away or sent a message that cannot be decoded (too large…).
+                        // The call itself failed (the client reset it or went away).
                         Err(status) => break End::Abort(status),
                     }
                 }
@@ -561,6 +576,16 @@ impl FleetStream {
             ));
         }
         Ok(())
+    }
+
+    /// Answers an item that could not be decoded, under the item id it carries when that can
+    /// be read from its bytes (and is within the id cap: a longer one is never echoed).
+    fn send_bad_item(&self, permit: OwnedSemaphorePermit, bad: BadItem) {
+        let item_id = bad
+            .string_field(FLEET_ITEM_ID_TAG)
+            .filter(|id| id.len() <= MAX_ID_LEN)
+            .unwrap_or_default();
+        self.send_error(permit, item_id, bad.error);
     }
 
     /// Answers an item with its error.

@@ -24,6 +24,15 @@ pub const DEFAULT_METRICS_LISTEN: &str = "127.0.0.1:9464";
 /// Largest accepted value of `max_decode_message_bytes` (64 MiB): fleets stream, they do not batch.
 pub const MAX_DECODE_MESSAGE_BYTES_LIMIT: usize = 64 * 1024 * 1024;
 
+/// Largest HTTP/2 flow-control window (RFC 9113 §6.9.1): 2^31 − 1 bytes.
+pub const HTTP2_MAX_WINDOW_BYTES: u32 = (1 << 31) - 1;
+
+/// Bytes h2 charges per buffered DATA frame at most (frames of 256 bytes or more are not
+/// charged), over the payload of the smallest gRPC message frame (its 5-byte prefix): a frame of
+/// `p` bytes costs `256 − p`, so at 5 bytes the charge is 251 per 5 buffered bytes, about 51
+/// times the bytes buffered (rounded up).
+pub const H2_WORST_FRAME_CHARGE_PER_BYTE: u64 = 51;
+
 /// How log lines are written.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -69,6 +78,13 @@ pub struct Config {
     pub http2_keepalive_interval_s: f64,
     /// Time to wait for a keepalive ping's answer before closing the connection, seconds.
     pub http2_keepalive_timeout_s: f64,
+    /// A new connection that has not sent its HTTP/2 preface (or, with TLS, completed the TLS
+    /// handshake) within this time is closed, seconds.
+    pub handshake_timeout_s: f64,
+    /// HTTP/2 flow-control window of each call, bytes: what a client may send ahead of a
+    /// server that reads it slowly. Memory per connection is at most `max_concurrent_streams`
+    /// times this; the connection window is the HTTP/2 maximum.
+    pub http2_stream_window_bytes: u32,
     /// No-start probability from which a vehicle's outlook is WATCH, percent.
     pub outlook_watch_from_pct: f64,
     /// No-start probability from which a vehicle's outlook is AT_RISK (act tonight), percent.
@@ -134,6 +150,8 @@ impl Default for Config {
             drain_timeout_s: 20.0,
             http2_keepalive_interval_s: 30.0,
             http2_keepalive_timeout_s: 10.0,
+            handshake_timeout_s: 10.0,
+            http2_stream_window_bytes: 64 * 1024,
             // The model's own defaults, so that an unconfigured server and the model agree.
             outlook_watch_from_pct: policy.thresholds.watch_from * 100.0,
             outlook_at_risk_from_pct: policy.thresholds.at_risk_from * 100.0,
@@ -245,6 +263,7 @@ impl Config {
                 self.http2_keepalive_timeout_s,
                 false,
             ),
+            ("handshake_timeout_s", self.handshake_timeout_s, false),
         ];
         for (key, value, zero_allowed) in seconds {
             let low_ok = if zero_allowed {
@@ -280,6 +299,7 @@ impl Config {
                 "action_target_no_start_pct = {target} must be between 0 and 100 (exclusive)"
             ));
         }
+        problems.extend(self.window_problems());
         problems.extend(self.security_problems());
         if self.watch_max_vehicles_per_stream == 0
             || self.watch_max_vehicles_per_stream > 10_000_000
@@ -356,6 +376,29 @@ impl Config {
         (self.effective_compute_threads() * 2).clamp(1, self.concurrency_limit)
     }
 
+    /// Problems of the flow-control window: it must let a normal call flow (at least one
+    /// 16 KiB frame) and keep h2's small-DATA-frame budget (half the maximum connection window)
+    /// out of reach even when every stream's window is filled with 5-byte frames.
+    fn window_problems(&self) -> Vec<String> {
+        let window = u64::from(self.http2_stream_window_bytes);
+        let streams = u64::from(self.max_concurrent_streams);
+        let budget = u64::from(HTTP2_MAX_WINDOW_BYTES) / 2;
+        let mut problems = Vec::new();
+        if window < 16 * 1024 {
+            problems.push(format!(
+                "http2_stream_window_bytes = {window} must be at least 16384"
+            ));
+        } else if streams * window * H2_WORST_FRAME_CHARGE_PER_BYTE > budget {
+            problems.push(format!(
+                "max_concurrent_streams ({streams}) × http2_stream_window_bytes ({window}) must be \
+                 at most {}: beyond it a client streaming small messages to a busy server could \
+                 exhaust HTTP/2's small-frame budget and lose its connection",
+                budget / H2_WORST_FRAME_CHARGE_PER_BYTE
+            ));
+        }
+        problems
+    }
+
     /// Problems of the TLS, authentication, metrics and stream-limit keys.
     fn security_problems(&self) -> Vec<String> {
         let mut problems = Vec::new();
@@ -429,6 +472,11 @@ impl Config {
     pub fn http2_keepalive_interval(&self) -> Option<Duration> {
         (self.http2_keepalive_interval_s > 0.0)
             .then(|| Duration::from_secs_f64(self.http2_keepalive_interval_s))
+    }
+
+    /// `handshake_timeout_s` as a duration.
+    pub fn handshake_timeout(&self) -> Duration {
+        Duration::from_secs_f64(self.handshake_timeout_s)
     }
 
     /// `http2_keepalive_timeout_s` as a duration.
@@ -590,6 +638,45 @@ mod tests {
         };
         assert_eq!(c.metrics_addr(), None);
         assert!(!Config::default().auth_enabled());
+    }
+
+    #[test]
+    fn every_key_is_documented_in_the_example() {
+        let example = include_str!("../../deploy/startmargin.example.toml");
+        let keys = serde_json::to_value(Config::default()).expect("serializes");
+        for key in keys.as_object().expect("an object").keys() {
+            assert!(
+                example.contains(&format!("#{key} =")) || example.contains(&format!("\n{key} =")),
+                "{key} is not in deploy/startmargin.example.toml"
+            );
+        }
+    }
+
+    #[test]
+    fn stream_window_is_checked_against_the_small_frame_budget() {
+        Config::default().validate().expect("the defaults fit");
+        let c = Config {
+            max_concurrent_streams: 1024,
+            ..Config::default()
+        };
+        let Err(ConfigError::Invalid(problems)) = c.validate() else {
+            panic!("1024 streams of 64 KiB exceed the budget")
+        };
+        assert!(
+            problems[0].contains("http2_stream_window_bytes"),
+            "{problems:?}"
+        );
+        let c = Config {
+            max_concurrent_streams: 1024,
+            http2_stream_window_bytes: 16 * 1024,
+            handshake_timeout_s: 0.0,
+            ..Config::default()
+        };
+        let Err(ConfigError::Invalid(problems)) = c.validate() else {
+            panic!("a zero handshake timeout is refused")
+        };
+        assert_eq!(problems.len(), 1, "{problems:?}");
+        assert!(problems[0].contains("handshake_timeout_s"), "{problems:?}");
     }
 
     #[test]

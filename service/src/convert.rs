@@ -1040,13 +1040,16 @@ pub fn decide(
     .map_err(model_err)?;
     // Depot candidate: the vehicle's probability with its heater from the planned time.
     let plug_in = match d.heater {
-        Some(h) if !night.depot_id.is_empty() => Some(PlugInCandidate {
-            p_without: h.p_without,
-            p_with: h.p_with,
-            heater_w: domain.aids.block_heater_w,
-            plug_in_s: h.plug_in_s,
-            margin_without_k: h.margin_without_k,
-        }),
+        // A heater that cannot lower the probability would only take an outlet.
+        Some(h) if !night.depot_id.is_empty() && h.p_with < h.p_without - 1e-3 => {
+            Some(PlugInCandidate {
+                p_without: h.p_without,
+                p_with: h.p_with,
+                heater_w: domain.aids.block_heater_w,
+                plug_in_s: h.plug_in_s,
+                margin_without_k: h.margin_without_k,
+            })
+        }
         _ => None,
     };
     let a = &d.assessment;

@@ -15,6 +15,7 @@
 
 pub mod api;
 pub mod auth;
+pub mod codec;
 pub mod config;
 pub mod convert;
 pub mod error;

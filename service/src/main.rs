@@ -28,7 +28,8 @@ struct Cli {
 enum Command {
     /// Serve the API, health and reflection until SIGTERM or SIGINT (the default).
     Serve,
-    /// Print the effective configuration as TOML and exit (64 when it is invalid).
+    /// Check the configuration as `serve` would (keys, TLS files, token sources), print the
+    /// effective configuration as TOML and exit (64 when anything is invalid).
     CheckConfig,
     /// Ask the local server whether it serves (gRPC health; `/healthz` with TLS): exit 0 when it
     /// does, 1 otherwise. For container health checks without a shell.
@@ -44,7 +45,14 @@ fn main() -> ExitCode {
             return ExitCode::from(EXIT_INVALID_CONFIG);
         }
     };
-    match cli.command.unwrap_or(Command::Serve) {
+    let command = cli.command.unwrap_or(Command::Serve);
+    if matches!(command, Command::CheckConfig | Command::Serve)
+        && let Err(e) = startmargin_service::server::check_startup(&config)
+    {
+        eprintln!("startmargind: invalid configuration: {e:#}");
+        return ExitCode::from(EXIT_INVALID_CONFIG);
+    }
+    match command {
         Command::CheckConfig => match config.to_toml() {
             Ok(text) => {
                 print!("{text}");

@@ -12,6 +12,20 @@
 //! call's status code and latency in [`crate::metrics`] and refuses streams beyond
 //! `max_open_streams` at once with RESOURCE_EXHAUSTED; the Prometheus endpoint of
 //! [`crate::metrics_http`] on `metrics_listen`.
+//!
+//! Transport: every accepted connection must send its HTTP/2 preface (or TLS ClientHello) within
+//! `handshake_timeout_s` ([`handshake`]). Flow control is set so that a stream the server reads
+//! slowly (back-pressure) can never trip h2's small-DATA-frame budget: h2 charges each buffered
+//! DATA frame under 256 bytes up to 256 bytes against a per-connection budget of half the
+//! connection window, so with hyper's default 1 MiB windows a client streaming items under
+//! ~170 bytes (one frame each) into a paused reader is cut off with GOAWAY ENHANCE_YOUR_CALM
+//! "too_many_data_frames", killing every call on the connection. The server therefore opens the
+//! connection window to its maximum (budget ≈ 1 GiB) and bounds what is really buffered with the
+//! per-stream window `http2_stream_window_bytes` (memory per connection ≤
+//! `max_concurrent_streams` × that window); `Config::validate` checks that even 5-byte frames
+//! (an empty gRPC message) filling every stream window stay under the budget.
+
+pub mod handshake;
 
 use std::net::SocketAddr;
 use std::pin::Pin;
@@ -20,14 +34,12 @@ use std::task::{Context, Poll};
 use std::time::{Duration, Instant};
 
 use anyhow::Context as _;
-use startmargin_proto::v1::start_margin_service_server::StartMarginServiceServer;
 use tokio::net::TcpListener;
 use tokio::sync::{OwnedSemaphorePermit, Semaphore, mpsc, oneshot};
 use tokio::task::JoinHandle;
 use tokio_stream::StreamExt as _;
 use tokio_stream::wrappers::ReceiverStream;
 use tokio_util::sync::CancellationToken;
-use tonic::server::NamedService;
 use tonic::transport::Server;
 use tonic::transport::server::TcpIncoming;
 use tonic::{Request, Response, Status};
@@ -39,11 +51,12 @@ use tracing::{info, warn};
 
 use crate::api::{DRAINING_MESSAGE, StartMarginApi};
 use crate::auth::{AuthLayer, TokenTable};
+use crate::codec::ApiRoutes;
 use crate::config::Config;
 use crate::metrics;
 
 /// Fully qualified name of the API service, as health checks and reflection name it.
-pub const SERVICE_NAME: &str = <StartMarginServiceServer<StartMarginApi> as NamedService>::NAME;
+pub const SERVICE_NAME: &str = crate::codec::SERVICE_NAME;
 
 /// A server running on the current tokio runtime.
 #[derive(Debug)]
@@ -75,6 +88,17 @@ impl RunningServer {
     }
 }
 
+/// Checks everything [`spawn`] would refuse before it binds: the keys ([`Config::validate`]),
+/// the TLS files (readable, parsable, key matching the certificate, client CA usable) and the
+/// token sources (files readable, variables set, entries well formed). `check-config` runs it,
+/// and `serve` exits 64 when it fails.
+pub fn check_startup(config: &Config) -> anyhow::Result<()> {
+    config.validate()?;
+    crate::tls::server_tls_config(config)?;
+    TokenTable::from_config(config)?;
+    Ok(())
+}
+
 /// Binds `config.listen` (use port 0 for a free port), starts the server and returns at once.
 pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
     config.validate()?;
@@ -84,7 +108,12 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
         .await
         .with_context(|| format!("cannot listen on {}", config.listen))?;
     let addr = listener.local_addr()?;
-    let incoming = TcpIncoming::from(listener).with_nodelay(Some(true));
+    let handshake_timeout = config.handshake_timeout();
+    let incoming = TcpIncoming::from(listener)
+        .with_nodelay(Some(true))
+        .map(move |accepted| {
+            accepted.map(|tcp| handshake::HandshakeDeadline::new(tcp, handshake_timeout))
+        });
 
     let shutdown = CancellationToken::new();
     let draining = CancellationToken::new();
@@ -102,8 +131,7 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
 
     let api =
         StartMarginApi::new(&config, draining.clone()).context("cannot start compute threads")?;
-    let api = StartMarginServiceServer::new(api)
-        .max_decoding_message_size(config.max_decode_message_bytes);
+    let api = ApiRoutes::new(api, config.max_decode_message_bytes);
     let reflection_v1 = tonic_reflection::server::Builder::configure()
         .register_encoded_file_descriptor_set(startmargin_proto::FILE_DESCRIPTOR_SET)
         .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
@@ -132,6 +160,11 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
         .layer(CallLayer::new(config.max_open_streams))
         .layer(AuthLayer::new(tokens))
         .max_concurrent_streams(config.max_concurrent_streams)
+        .initial_connection_window_size(crate::config::HTTP2_MAX_WINDOW_BYTES)
+        .initial_stream_window_size(config.http2_stream_window_bytes)
+        // A measured (adaptive) window would shrink the connection window and with it h2's
+        // small-frame budget; fixed windows keep the bound above.
+        .http2_adaptive_window(Some(false))
         .http2_keepalive_interval(config.http2_keepalive_interval())
         .http2_keepalive_timeout(Some(config.http2_keepalive_timeout()))
         .add_service(health)

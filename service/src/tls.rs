@@ -2,9 +2,17 @@
 //! chain and key from PEM files, and optionally a client CA bundle that turns on mutual TLS (every
 //! client must present a certificate it signed). Paths come from the configuration; an error names
 //! the file, never its content.
+//!
+//! Before the files are handed to tonic they are checked the way the TLS handshake will use
+//! them (rustls, as tonic does): the certificates and the key parse, the key is the private key
+//! of the first certificate, and the client CA holds at least one usable certificate. So
+//! `check-config` and the start of `serve` refuse what would otherwise fail only once the server
+//! runs.
 
 use std::path::{Path, PathBuf};
 
+use rustls::pki_types::pem::PemObject as _;
+use rustls::pki_types::{CertificateDer, PrivateKeyDer};
 use tonic::transport::{Certificate, Identity, ServerTlsConfig};
 
 use crate::config::Config;
@@ -32,6 +40,96 @@ pub enum TlsError {
         /// The expected PEM label fragment.
         label: &'static str,
     },
+    /// A file's PEM blocks do not parse as what they should hold.
+    #[error("{what} {path} cannot be used: {reason}")]
+    Unusable {
+        /// Which file.
+        what: &'static str,
+        /// The path.
+        path: PathBuf,
+        /// Why (from the TLS library; never the file's content).
+        reason: String,
+    },
+    /// The key is not the private key of the certificate.
+    #[error("the TLS key {key} does not belong to the certificate {cert}: {reason}")]
+    Mismatch {
+        /// The certificate file.
+        cert: PathBuf,
+        /// The key file.
+        key: PathBuf,
+        /// Why.
+        reason: String,
+    },
+}
+
+/// The certificates of a PEM file.
+fn parse_certificates(
+    what: &'static str,
+    path: &Path,
+    pem: &[u8],
+) -> Result<Vec<CertificateDer<'static>>, TlsError> {
+    let certs = CertificateDer::pem_slice_iter(pem)
+        .collect::<Result<Vec<_>, _>>()
+        .map_err(|e| TlsError::Unusable {
+            what,
+            path: path.to_path_buf(),
+            reason: e.to_string(),
+        })?;
+    if certs.is_empty() {
+        return Err(TlsError::NotPem {
+            what,
+            path: path.to_path_buf(),
+            label: "CERTIFICATE",
+        });
+    }
+    Ok(certs)
+}
+
+/// Checks that the certificate chain and key parse and belong together, and that the client
+/// CA (when given) holds a usable certificate.
+fn check_identity(
+    cert_path: &Path,
+    cert: &[u8],
+    key_path: &Path,
+    key: &[u8],
+    ca: Option<(&Path, &[u8])>,
+) -> Result<(), TlsError> {
+    let chain = parse_certificates("the TLS certificate", cert_path, cert)?;
+    let private_key = PrivateKeyDer::from_pem_slice(key).map_err(|e| TlsError::Unusable {
+        what: "the TLS key",
+        path: key_path.to_path_buf(),
+        reason: e.to_string(),
+    })?;
+    let provider = rustls::crypto::ring::default_provider();
+    let mismatch = |reason: String| TlsError::Mismatch {
+        cert: cert_path.to_path_buf(),
+        key: key_path.to_path_buf(),
+        reason,
+    };
+    let signing_key = provider
+        .key_provider
+        .load_private_key(private_key)
+        .map_err(|e| TlsError::Unusable {
+            what: "the TLS key",
+            path: key_path.to_path_buf(),
+            reason: e.to_string(),
+        })?;
+    rustls::sign::CertifiedKey::new(chain, signing_key)
+        .keys_match()
+        .map_err(|e| mismatch(e.to_string()))?;
+    if let Some((ca_path, ca)) = ca {
+        let roots = parse_certificates("the client CA", ca_path, ca)?;
+        let mut store = rustls::RootCertStore::empty();
+        let (added, _ignored) = store.add_parsable_certificates(roots);
+        if added == 0 {
+            return Err(TlsError::Unusable {
+                what: "the client CA",
+                path: ca_path.to_path_buf(),
+                reason: "no certificate in it can be a trust anchor".to_string(),
+            });
+        }
+    }
+    Ok(())
 }
 
 fn read_pem(what: &'static str, path: &Path, label: &'static str) -> Result<Vec<u8>, TlsError> {
@@ -58,11 +156,24 @@ pub fn server_tls_config(config: &Config) -> Result<Option<ServerTlsConfig>, Tls
     let (Some(cert), Some(key)) = (&config.tls_cert_path, &config.tls_key_path) else {
         return Ok(None);
     };
-    let cert = read_pem("the TLS certificate", cert, "CERTIFICATE")?;
-    let key = read_pem("the TLS key", key, "PRIVATE KEY")?;
-    let mut tls = ServerTlsConfig::new().identity(Identity::from_pem(cert, key));
-    if let Some(ca) = &config.tls_client_ca_path {
-        let ca = read_pem("the client CA", ca, "CERTIFICATE")?;
+    let (cert_path, key_path) = (cert, key);
+    let cert = read_pem("the TLS certificate", cert_path, "CERTIFICATE")?;
+    let key = read_pem("the TLS key", key_path, "PRIVATE KEY")?;
+    let ca = match &config.tls_client_ca_path {
+        Some(path) => Some((path, read_pem("the client CA", path, "CERTIFICATE")?)),
+        None => None,
+    };
+    check_identity(
+        cert_path,
+        &cert,
+        key_path,
+        &key,
+        ca.as_ref().map(|(p, b)| (p.as_path(), b.as_slice())),
+    )?;
+    let mut tls = ServerTlsConfig::new()
+        .identity(Identity::from_pem(cert, key))
+        .timeout(config.handshake_timeout());
+    if let Some((_, ca)) = ca {
         tls = tls
             .client_ca_root(Certificate::from_pem(ca))
             .client_auth_optional(false);

@@ -29,8 +29,8 @@
 //!
 //! **Units.** Volts, amperes, ohms, kelvin; state of charge and health as fractions 0–1.
 //!
-//! **Validity.** 12 or 24 V nominal, 50–5,000 CCA per string, battery temperature 213.15–343.15 K
-//! (−60 to +70 °C), health 0.01–1.
+//! **Validity.** 12 or 24 V nominal, 50–5,000 CCA per string, battery temperature 183.15–343.15 K
+//! (−90 to +70 °C; below −57 °C even a full battery is frozen), health 0.01–1.
 
 use crate::constants::ZERO_CELSIUS_K;
 use crate::error::{ModelError, check_range};
@@ -112,9 +112,9 @@ impl Battery {
         check_range(
             "battery_t_k",
             self.temperature_k,
-            213.15,
+            183.15,
             343.15,
-            "battery model covers −60 to +70 °C",
+            "battery model covers −90 to +70 °C (below about −57 °C every battery is frozen)",
         )?;
         Ok(())
     }

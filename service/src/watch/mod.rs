@@ -36,10 +36,11 @@ use tokio::sync::mpsc;
 use tokio::time::Instant;
 use tokio_stream::Stream;
 use tokio_util::sync::CancellationToken;
-use tonic::{Request, Status, Streaming};
+use tonic::{Request, Status};
 use tracing::{Instrument, debug, info, info_span};
 
 use crate::api::pool::{Budget, ComputePool, Job, Lane, QuotaGuard};
+use crate::codec::Inbound;
 use crate::convert::{self, MAX_ID_LEN, ZoneForecasts};
 use crate::error::{ApiError, FieldViolation, to_rpc_status};
 use crate::metrics;
@@ -78,13 +79,16 @@ pub const MAX_QUEUED_REFUSALS: usize = 64;
 /// renamed to the paths of the update they came from (see [`request_path`]).
 const NIGHT: &str = "night";
 
+/// Tag of `WatchFleetRequest.sequence`, read from an undecodable update to name it.
+const SEQUENCE_TAG: u32 = 6;
+
 /// Message of the status that ends a watch stream when the server shuts down.
 pub const DRAINING_MESSAGE: &str = "server is draining";
 
 /// Starts a WatchFleet stream: its state lives in a task that reads the input; the returned
 /// stream carries the events.
 pub fn start(
-    request: Request<Streaming<pb::WatchFleetRequest>>,
+    request: Request<Inbound<pb::WatchFleetRequest>>,
     compute: Compute,
     settings: WatchSettings,
     draining: CancellationToken,
@@ -215,7 +219,7 @@ type Applied = (Vec<Box<str>>, Undo);
 type Refusal = (String, ApiError);
 
 impl WatchStream {
-    async fn run(mut self, mut inbound: Streaming<pb::WatchFleetRequest>) {
+    async fn run(mut self, mut inbound: Inbound<pb::WatchFleetRequest>) {
         let mut bucket = Bucket::new(self.settings.max_updates_per_s);
         let mut updates: u64 = 0;
         let status = loop {
@@ -243,10 +247,19 @@ impl WatchStream {
                 }
             };
             match message {
-                Ok(Ok(Some(request))) => {
+                Ok(Ok(Some(Ok(request)))) => {
                     updates += 1;
                     self.idle_at = Instant::now() + self.settings.idle_timeout;
                     if let Err(stop) = self.handle(request).await {
+                        break stop;
+                    }
+                }
+                Ok(Ok(Some(Err(bad)))) => {
+                    // Undecodable or over-size: refused under the sequence it carries, if readable.
+                    updates += 1;
+                    self.idle_at = Instant::now() + self.settings.idle_timeout;
+                    let seq = bad.varint_field(SEQUENCE_TAG).unwrap_or_default();
+                    if let Err(stop) = self.refuse(seq, String::new(), bad.error, Vec::new()) {
                         break stop;
                     }
                 }

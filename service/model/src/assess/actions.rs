@@ -422,8 +422,11 @@ pub fn recommend(
         &mut fuel,
     )?;
     for f in &fuel {
+        // At the lowest gel levels the fuel advice is only worth showing when it changes tonight.
         if let Some(x) = fuel_action(night, a, f, heater.is_some(), method)?
             && !out.iter().any(|y| y.kind == x.kind)
+            && (a.gel.level >= crate::gel_risk::GelRiskLevel::WaxForming
+                || x.no_start_after < p.probability - 1e-4)
         {
             out.push(x);
         }

@@ -97,3 +97,81 @@ pub fn decide(night: &VehicleNight, policy: &DecisionPolicy) -> Result<Decision,
         heater,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    //! One verdict: over a grid of archetypes, nights, batteries, relays and fuels, no two outputs
+    //! of a decision contradict each other.
+    use super::*;
+    use crate::archetypes::ARCHETYPES;
+    use crate::assess::tests::service_night;
+    use crate::fuel::{FuelBase, FuelGrade};
+
+    #[test]
+    fn verdict_headline_probability_outlook_and_limiting_factor_agree() {
+        let mut checked = (0, 0);
+        for a in ARCHETYPES {
+            for air_c in [-40.0, -25.0, -15.0, -5.0, 5.0] {
+                for soc in [1.0, 0.6, 0.2] {
+                    for grade in [FuelGrade::UsNo2, FuelGrade::UsNo1] {
+                        let mut n = service_night(a, air_c);
+                        n.battery.state_of_charge = Some(soc);
+                        n.fuel.description.base = FuelBase::Grade(grade);
+                        let d = decide(&n, &DecisionPolicy::default()).unwrap();
+                        let p = &d.probability;
+                        let margin = d.assessment.modes.get(p.binding);
+                        // The verdict and the headline margin.
+                        assert_eq!(
+                            d.assessment.start_expected,
+                            margin > 0.0,
+                            "{} {air_c}",
+                            a.id
+                        );
+                        // The probability follows the binding margin's sign.
+                        assert_eq!(p.probability >= 0.5, margin <= 0.0, "{} {air_c}", a.id);
+                        // "No start expected" exactly when no start is expected.
+                        assert_eq!(
+                            d.outlook == StartOutlook::NoStartExpected,
+                            !d.assessment.start_expected,
+                            "{} {air_c} soc {soc} {grade:?}: {:?} p {} margin {margin}",
+                            a.id,
+                            d.outlook,
+                            p.probability
+                        );
+                        // Nothing "limits" only when the outlook is assured.
+                        if d.outlook != StartOutlook::Assured {
+                            assert_ne!(d.limiting_factor, LimitingFactor::None, "{} {air_c}", a.id);
+                        }
+                        checked.0 += 1;
+                        checked.1 += usize::from(!d.assessment.start_expected);
+                    }
+                }
+            }
+        }
+        // Not vacuous: both verdicts occur.
+        assert!(checked.1 > 20 && checked.1 < checked.0 - 20, "{checked:?}");
+    }
+
+    #[test]
+    fn across_nights_a_lower_binding_margin_never_has_a_lower_probability() {
+        for a in ARCHETYPES {
+            let mut rows = Vec::new();
+            for step in 0..=16 {
+                let air_c = 10.0 - 3.0 * f64::from(step);
+                let d = decide(&service_night(a, air_c), &DecisionPolicy::default()).unwrap();
+                let p = &d.probability;
+                rows.push((p.binding_margin / p.binding.model_sigma(), p.probability));
+            }
+            rows.sort_by(|x, y| x.0.total_cmp(&y.0));
+            for w in rows.windows(2) {
+                assert!(
+                    w[1].1 <= w[0].1 + 1e-9,
+                    "{}: {:?} then {:?}",
+                    a.id,
+                    w[0],
+                    w[1]
+                );
+            }
+        }
+    }
+}

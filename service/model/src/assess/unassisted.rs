@@ -644,4 +644,24 @@ mod tests {
             assert!(d.abs() < 15.0, "{name}: {d:+.1} K");
         }
     }
+
+    #[test]
+    fn the_whole_accepted_range_answers() {
+        // Every air temperature the API accepts (−70…+50 °C), hot restarts and worn engines give
+        // a verdict, not an error.
+        for a in crate::archetypes::ARCHETYPES {
+            for air_c in [-70.0, -60.0, -50.0, 0.0, 50.0] {
+                let r = assess(&aided_night(a, celsius_to_kelvin(air_c)));
+                assert!(r.is_ok(), "{} at {air_c} °C: {r:?}", a.id);
+            }
+            // A worn engine: 1.4 MPa gauge measured in the workshop.
+            let mut worn = a.engine;
+            worn.measured_compression_abs_pa = Some(1.4e6 + STANDARD_ATMOSPHERE_PA);
+            let leak = crate::assess::leak_area_m2(&worn);
+            assert!(leak.is_ok(), "{}: {leak:?}", a.id);
+            worn.leak_area_m2 = leak.unwrap();
+            let r = assess(&reference_night(&worn, celsius_to_kelvin(-10.0))).unwrap();
+            assert!(!r.start_expected, "{}: a worn engine at −10 °C", a.id);
+        }
+    }
 }
