@@ -409,10 +409,13 @@ impl FleetStream {
         let plans = self
             .pool
             .run(self.lane, move || {
+                let mut candidates = candidates;
                 let mut plans: Vec<(String, pb::PlugInPlan)> = depots
                     .into_iter()
                     .map(|(depot_id, (item_id, limits))| {
-                        let found = candidates.get(&depot_id).map_or(&[][..], Vec::as_slice);
+                        let mut found = candidates.remove(&depot_id).unwrap_or_default();
+                        // In item order, not completion order: the same stream, the same plan.
+                        found.sort_by(|a, b| a.0.cmp(&b.0));
                         // The plan names each vehicle by its index here, then gets its item id
                         // and vehicle id back: item ids are unique, vehicle ids need not be.
                         let index: Vec<String> = (0..found.len()).map(|i| i.to_string()).collect();

@@ -646,7 +646,9 @@ mod tests {
         let keys = serde_json::to_value(Config::default()).expect("serializes");
         for key in keys.as_object().expect("an object").keys() {
             assert!(
-                example.contains(&format!("#{key} =")) || example.contains(&format!("\n{key} =")),
+                example.contains(&format!("#{key} ="))
+                    || example.contains(&format!("\n{key} ="))
+                    || example.contains(&format!("\n[{key}]")),
                 "{key} is not in deploy/startmargin.example.toml"
             );
         }
