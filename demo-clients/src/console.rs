@@ -147,6 +147,7 @@ mod tests {
                 heater_w: 750.0,
                 no_start_without_pct: 100.0,
                 no_start_with_pct: 38.2,
+                item_id: "PU-11".into(),
             }],
             expected_no_starts_without: 1.83,
             expected_no_starts_with: 1.22,

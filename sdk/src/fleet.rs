@@ -180,3 +180,214 @@ impl Stream for FleetResults {
         self.inner.as_mut().poll_next(cx)
     }
 }
+
+/// What [`crate::Client::assess_fleet_resuming`] delivers: each item's result once, and a note
+/// each time the stream broke and the unanswered items are sent again on a new stream.
+// A result is much larger than a note; events are moved once, so no box.
+#[allow(clippy::large_enum_variant)]
+#[derive(Debug, Clone, PartialEq)]
+pub enum FleetProgress {
+    /// A result (each vehicle item's at most once, across reconnects).
+    Result(FleetResult),
+    /// The stream broke with `error`; a new stream (reconnect number `attempt`, 1-based) sends
+    /// the zone forecasts and depot outlets again with the `unanswered` vehicle items, plus
+    /// `for_plans` answered vehicle items of depots whose plan had not come yet (a plan covers
+    /// the vehicles of one stream; their repeated results are not delivered again).
+    Resending {
+        /// Reconnect number, from 1.
+        attempt: u32,
+        /// Vehicle items sent again because they had no result.
+        unanswered: usize,
+        /// Answered vehicle items sent again for their depot's plan.
+        for_plans: usize,
+        /// Why the previous stream broke.
+        error: Error,
+    },
+}
+
+/// The events of [`crate::Client::assess_fleet_resuming`]. An `Err` is the last item: the stream
+/// broke once more than allowed, or with an error a new stream would not cure.
+pub struct FleetRun {
+    inner: Pin<Box<dyn Stream<Item = Result<FleetProgress, Error>> + Send>>,
+}
+
+impl std::fmt::Debug for FleetRun {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("FleetRun").finish_non_exhaustive()
+    }
+}
+
+impl Stream for FleetRun {
+    type Item = Result<FleetProgress, Error>;
+
+    fn poll_next(mut self: Pin<&mut Self>, cx: &mut Context<'_>) -> Poll<Option<Self::Item>> {
+        self.inner.as_mut().poll_next(cx)
+    }
+}
+
+/// Whether a broken fleet stream is worth a new stream: the server went away or drains.
+fn resumable(e: &Error) -> bool {
+    matches!(e, Error::Unavailable(_) | Error::Transport(_))
+        || matches!(
+            e,
+            Error::Other(tonic::Code::Unknown | tonic::Code::Cancelled, _)
+        )
+}
+
+/// Which items of a run had their answer.
+#[derive(Debug, Default)]
+struct Answered {
+    /// Item ids of vehicle items with a result.
+    vehicles: std::collections::HashSet<String>,
+    /// Item ids of depot outlets whose plan came.
+    plans: std::collections::HashSet<String>,
+}
+
+impl Answered {
+    /// The items to send on a new stream, with (unanswered, for_plans) counts: every zone
+    /// forecast and depot outlets item, each vehicle item without a result, and the answered
+    /// vehicle items of a depot whose plan has not come.
+    fn to_send(&self, items: &[FleetItem]) -> (Vec<FleetItem>, usize, usize) {
+        use api::assess_fleet_request::Item;
+        let pending_depots: std::collections::HashSet<&str> = items
+            .iter()
+            .filter_map(|i| match &i.0.item {
+                Some(Item::DepotOutlets(d)) if !self.plans.contains(&i.0.item_id) => {
+                    Some(d.depot_id.as_str())
+                }
+                _ => None,
+            })
+            .collect();
+        let (mut unanswered, mut for_plans) = (0, 0);
+        let send = items
+            .iter()
+            .filter(|i| match &i.0.item {
+                Some(Item::Vehicle(night)) => {
+                    if !self.vehicles.contains(&i.0.item_id) {
+                        unanswered += 1;
+                        true
+                    } else if pending_depots.contains(night.depot_id.as_str()) {
+                        for_plans += 1;
+                        true
+                    } else {
+                        false
+                    }
+                }
+                _ => true,
+            })
+            .cloned()
+            .collect();
+        (send, unanswered, for_plans)
+    }
+}
+
+impl crate::Client {
+    /// Assesses a fleet like [`crate::Client::assess_fleet`], and survives a broken stream (a
+    /// server killed or drained mid-run): each result's item id tells which items were answered,
+    /// and on a new stream (the next endpoint) only the zone
+    /// forecasts, the depot outlets and the unanswered vehicle items are sent again (after a
+    /// jittered backoff of 100 ms doubling to 2 s), announced by
+    /// [`FleetProgress::Resending`]; at most `max_reconnects` times. Every vehicle item needs its
+    /// own item id (the default, its vehicle id, serves when vehicle ids are unique).
+    ///
+    /// The items are held in memory for the whole run, so that they can be sent again.
+    pub fn assess_fleet_resuming(&self, items: Vec<FleetItem>, max_reconnects: u32) -> FleetRun {
+        let client = self.clone();
+        let jitter_key = crate::retry::default_jitter_key();
+        let (tx, rx) = tokio::sync::mpsc::channel::<Result<FleetProgress, Error>>(64);
+        tokio::spawn(async move {
+            let mut answered = Answered::default();
+            let mut attempt = 0u32;
+            let mut send = items.clone();
+            loop {
+                let mut results = client.assess_fleet(tokio_stream::iter(send));
+                let broken = loop {
+                    use tokio_stream::StreamExt as _;
+                    match results.next().await {
+                        None => return,
+                        Some(Ok(r)) => {
+                            let first = match &r.outcome {
+                                Ok(FleetOutcome::PlugInPlan(_)) => {
+                                    answered.plans.insert(r.item_id.clone())
+                                }
+                                _ if r.item_id.is_empty() => true,
+                                _ => answered.vehicles.insert(r.item_id.clone()),
+                            };
+                            if first && tx.send(Ok(FleetProgress::Result(r))).await.is_err() {
+                                return; // the caller stopped reading
+                            }
+                        }
+                        Some(Err(e)) => break e,
+                    }
+                };
+                if !resumable(&broken) || attempt >= max_reconnects {
+                    let _ = tx.send(Err(broken)).await;
+                    return;
+                }
+                let wait = crate::retry::Backoff::default().delay(attempt, jitter_key);
+                tokio::time::sleep(wait).await;
+                attempt += 1;
+                let (next, unanswered, for_plans) = answered.to_send(&items);
+                let note = FleetProgress::Resending {
+                    attempt,
+                    unanswered,
+                    for_plans,
+                    error: broken,
+                };
+                if tx.send(Ok(note)).await.is_err() {
+                    return;
+                }
+                send = next;
+            }
+        });
+        FleetRun {
+            inner: Box::pin(tokio_stream::wrappers::ReceiverStream::new(rx)),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn vehicle(item_id: &str, depot_id: &str) -> FleetItem {
+        FleetItem(api::AssessFleetRequest {
+            item_id: item_id.into(),
+            item: Some(api::assess_fleet_request::Item::Vehicle(
+                api::VehicleNight {
+                    depot_id: depot_id.into(),
+                    ..Default::default()
+                },
+            )),
+        })
+    }
+
+    #[test]
+    fn a_resend_carries_the_context_the_unanswered_and_what_a_missing_plan_needs() {
+        let items = vec![
+            FleetItem(api::AssessFleetRequest {
+                item_id: "zone:z".into(),
+                item: Some(api::assess_fleet_request::Item::ZoneForecast(
+                    api::ZoneForecast::default(),
+                )),
+            }),
+            FleetItem::depot_outlets("east", 2, None),
+            vehicle("a", "east"),
+            vehicle("b", "east"),
+            vehicle("c", ""),
+            vehicle("d", ""),
+        ];
+        let mut answered = Answered::default();
+        answered.vehicles.extend(["a".to_string(), "c".to_string()]);
+        let (send, unanswered, for_plans) = answered.to_send(&items);
+        let ids: Vec<&str> = send.iter().map(FleetItem::item_id).collect();
+        assert_eq!(ids, ["zone:z", "depot:east", "a", "b", "d"]);
+        assert_eq!((unanswered, for_plans), (2, 1));
+        // Once the plan came, the depot's answered vehicles stay answered.
+        answered.plans.insert("depot:east".to_string());
+        let (send, unanswered, for_plans) = answered.to_send(&items);
+        let ids: Vec<&str> = send.iter().map(FleetItem::item_id).collect();
+        assert_eq!(ids, ["zone:z", "depot:east", "b", "d"]);
+        assert_eq!((unanswered, for_plans), (2, 0));
+    }
+}

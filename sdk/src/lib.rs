@@ -58,7 +58,7 @@ pub use api::{
 };
 pub use client::{Client, ClientBuilder};
 pub use error::Error;
-pub use fleet::{FleetItem, FleetOutcome, FleetResult, FleetResults};
+pub use fleet::{FleetItem, FleetOutcome, FleetProgress, FleetResult, FleetResults, FleetRun};
 pub use forecast::{Forecast, ForecastBuilder};
 pub use night::VehicleNight;
 pub use profile::{VehicleProfile, VehicleProfileBuilder};

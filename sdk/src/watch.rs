@@ -356,6 +356,17 @@ impl State {
             }
             Update::Telemetry(t) => {
                 let list = self.telemetry.entry(t.vehicle_id.clone()).or_default();
+                // The server refuses a report not newer than the one it holds for the vehicle:
+                // keep only what it accepts, so that the replay rebuilds the same state in order.
+                let at = |u: &api::TelemetryUpdate| {
+                    u.telemetry
+                        .as_ref()
+                        .and_then(|x| x.observed_at)
+                        .map(|o| (o.seconds, o.nanos))
+                };
+                if at(t).is_none() || list.last().is_some_and(|last| at(t) <= at(last)) {
+                    return;
+                }
                 if t.key_off {
                     list.clear();
                 }
@@ -652,5 +663,20 @@ mod tests {
             vehicle_id: "a".into(),
         }));
         assert_eq!(st.replay().len(), 1);
+    }
+
+    #[test]
+    fn an_older_report_is_not_kept_for_the_replay() {
+        let mut st = State::default();
+        st.apply(&telemetry("a", true, 100));
+        st.apply(&telemetry("a", false, 200));
+        // Sent late (the server refuses it): it must not reorder or reset the replay.
+        st.apply(&telemetry("a", true, 150));
+        st.apply(&telemetry("a", false, 200));
+        let kept: Vec<(i64, bool)> = st.telemetry["a"]
+            .iter()
+            .map(|t| (t.telemetry.unwrap().observed_at.unwrap().seconds, t.key_off))
+            .collect();
+        assert_eq!(kept, [(100, true), (200, false)]);
     }
 }

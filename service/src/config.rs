@@ -127,6 +127,8 @@ pub struct Config {
     /// Age after which a client connection is asked to reconnect (HTTP/2 GOAWAY; calls in flight
     /// finish), seconds, so that clients spread over replicas added later; 0 = never.
     pub max_connection_age_s: f64,
+    /// The `[streams]` section: fair sharing, per-tenant quotas, watch idle timeout.
+    pub streams: crate::watch::settings::StreamSettings,
 }
 
 impl Default for Config {
@@ -168,6 +170,7 @@ impl Default for Config {
             metrics_listen: DEFAULT_METRICS_LISTEN.to_string(),
             max_open_streams: 1024,
             max_connection_age_s: 0.0,
+            streams: Default::default(),
         }
     }
 }
@@ -473,6 +476,7 @@ impl Config {
         if self.max_open_streams == 0 {
             problems.push("max_open_streams must be at least 1".to_string());
         }
+        problems.extend(self.streams.problems());
         let age = self.max_connection_age_s;
         if !age.is_finite() || !(0.0..=604_800.0).contains(&age) {
             problems.push(format!(
@@ -742,7 +746,9 @@ mod tests {
         let keys = serde_json::to_value(Config::default()).expect("serializes");
         for key in keys.as_object().expect("an object").keys() {
             assert!(
-                example.contains(&format!("#{key} =")) || example.contains(&format!("\n{key} =")),
+                example.contains(&format!("#{key} ="))
+                    || example.contains(&format!("\n{key} ="))
+                    || example.contains(&format!("\n[{key}]")),
                 "{key} is not in deploy/startmargin.example.toml"
             );
         }

@@ -38,8 +38,10 @@ pub use describe::describe_model;
 /// Zone forecasts received on a fleet or watch stream, by zone id.
 pub type ZoneForecasts = HashMap<String, Arc<ForecastSeries>>;
 
-/// Longest vehicle or zone id accepted, bytes.
+/// Longest id accepted (vehicle, zone, depot, item, archetype), bytes.
 pub const MAX_ID_LEN: usize = 128;
+/// Longest SAE J300 grade text accepted (e.g. `15W-40`), bytes.
+pub const MAX_SAE_GRADE_LEN: usize = 16;
 
 /// Collects every field violation of a request, so that a caller fixes them all at once.
 #[derive(Debug, Default)]
@@ -77,12 +79,24 @@ impl Violations {
         value.map(|v| self.range(field, v, min, max, unit))
     }
 
+    /// Checks an id: present when required, at most [`MAX_ID_LEN`] bytes (never echoed).
     fn id(&mut self, field: &str, id: &str, required: bool) {
         if required && id.is_empty() {
             self.add(field, "must not be empty");
         } else if id.len() > MAX_ID_LEN {
-            self.add(field, format!("longer than {MAX_ID_LEN} bytes"));
+            self.add(
+                field,
+                format!("is {} bytes, longer than {MAX_ID_LEN}", id.len()),
+            );
         }
+    }
+
+    /// Checks an enum number the API knows; returns whether it is known.
+    fn known_enum(&mut self, field: &str, value: i32, known: bool) -> bool {
+        if !known {
+            self.add(field, format!("unknown value {value}"));
+        }
+        known
     }
 
     fn timestamp(&mut self, field: &str, t: Option<&Timestamp>) -> Option<f64> {
@@ -128,6 +142,14 @@ pub fn timestamp(at_s: f64) -> Timestamp {
 fn duration_s(v: &mut Violations, field: &str, d: Option<&Duration>) -> f64 {
     match d {
         None => 3600.0,
+        // A positive duration has nanos in 0..1e9 (protobuf's own rule for Duration).
+        Some(d) if !(0..1_000_000_000).contains(&d.nanos) => {
+            v.add(
+                format!("{field}.nanos"),
+                format!("{} is outside 0 to 999999999", d.nanos),
+            );
+            3600.0
+        }
         Some(d) => {
             let s = d.seconds as f64 + f64::from(d.nanos) * 1e-9;
             v.range(field, s, 300.0, 21_600.0, "s (5 min to 6 h)")
@@ -310,13 +332,15 @@ fn engine_from_pb(
             )
             .map(|h| h * 3600.0),
     };
-    if pb::CombustionSystem::try_from(e.combustion_system).is_err() {
-        v.add(
-            f("combustion_system"),
-            format!("unknown value {}", e.combustion_system),
-        );
-    }
-    let (base_engine, base_aids) = if e.archetype_id.is_empty() {
+    v.known_enum(
+        &f("combustion_system"),
+        e.combustion_system,
+        pb::CombustionSystem::try_from(e.combustion_system).is_ok(),
+    );
+    let (base_engine, base_aids) = if e.archetype_id.len() > MAX_ID_LEN {
+        v.id(&f("archetype_id"), &e.archetype_id, false);
+        return None;
+    } else if e.archetype_id.is_empty() {
         // A fully specified engine: the core geometry is required; the rest starts from a generic
         // direct-injection engine and is scaled where it depends on size.
         for (name, given) in [
@@ -400,6 +424,19 @@ fn aids_from_pb(
             ..g
         })
     } else {
+        // Health and preheat describe glow plugs: without them they are a mistake, not a no-op.
+        if a.glow_plug_health != pb::GlowPlugHealth::Unspecified as i32 {
+            v.add(
+                f("glow_plug_health"),
+                "is set but glow_plugs_fitted is false (give the health only with glow plugs)",
+            );
+        }
+        if a.glow_preheat_s.is_some() {
+            v.add(
+                f("glow_preheat_s"),
+                "is set but glow_plugs_fitted is false (give a preheat time only with glow plugs)",
+            );
+        }
         None
     };
     let default_preheat_s = if base.glow_plugs.is_some() {
@@ -467,7 +504,12 @@ fn fuel_from_pb(v: &mut Violations, fpb: Option<&pb::FuelSpec>, path: &str) -> F
             &default
         }
     };
-    let base = match (&fpb.measured, grades::grade_from_pb(fpb.grade)) {
+    let grade = grades::grade_from_pb(fpb.grade);
+    if fpb.measured.is_some() && grade.is_err() {
+        // Measured properties win, but an unknown grade beside them is still a mistake.
+        v.add(f("grade"), format!("unknown value {}", fpb.grade));
+    }
+    let base = match (&fpb.measured, grade) {
         (Some(m), _) => {
             let cp = v.range(
                 &f("measured.cloud_point_c"),
@@ -546,14 +588,30 @@ fn fuel_from_pb(v: &mut Violations, fpb: Option<&pb::FuelSpec>, path: &str) -> F
             FilterMount::EngineBay
         }
     };
+    let biodiesel_pct = v.range(&f("biodiesel_pct"), fpb.biodiesel_pct, 0.0, 100.0, "%");
+    let no1_blend_pct = v.range(&f("no1_blend_pct"), fpb.no1_blend_pct, 0.0, 100.0, "%");
+    // Both are shares of the same tank: together at most all of it.
+    if biodiesel_pct + no1_blend_pct > 100.0 {
+        v.add(
+            f("no1_blend_pct"),
+            format!(
+                "{no1_blend_pct} % No. 1 plus {biodiesel_pct} % biodiesel is more than 100 % of the fuel"
+            ),
+        );
+    }
+    if fpb.biodiesel_feedstock != pb::BiodieselFeedstock::Unspecified as i32 && biodiesel_pct == 0.0
+    {
+        v.add(
+            f("biodiesel_feedstock"),
+            "is set but biodiesel_pct is 0 (a feedstock needs a biodiesel share)",
+        );
+    }
     FuelConfig {
         description: FuelDescription {
             base,
-            biodiesel_fraction: v.range(&f("biodiesel_pct"), fpb.biodiesel_pct, 0.0, 100.0, "%")
-                / 100.0,
+            biodiesel_fraction: biodiesel_pct / 100.0,
             feedstock,
-            no1_blend_fraction: v.range(&f("no1_blend_pct"), fpb.no1_blend_pct, 0.0, 100.0, "%")
-                / 100.0,
+            no1_blend_fraction: no1_blend_pct / 100.0,
             additive,
             cetane_number: v.opt_range(&f("cetane_number"), fpb.cetane_number, 30.0, 80.0, ""),
         },
@@ -623,10 +681,106 @@ fn options_from_pb(
             DelayCorrelation::default()
         }
     };
+    v.known_enum(
+        &format!("{path}.probability_method"),
+        o.probability_method,
+        pb::ProbabilityMethod::try_from(o.probability_method).is_ok(),
+    );
+    // The actions' target: a probability strictly between certainty and doom (as the config's).
+    if let Some(t) = o.target_no_start_pct
+        && !(t > 0.0 && t < 100.0)
+    {
+        v.add(
+            format!("{path}.target_no_start_pct"),
+            format!("{t} must be above 0 and below 100 %"),
+        );
+    }
     AssessOptions {
         delay_correlation,
         include_margin_path: o.include_margin_path,
     }
+}
+
+/// A vehicle profile converted for the model (engine and aids, battery, oil, fuel); `None`
+/// parts had a violation.
+struct ProfileParts {
+    engine_aids: Option<(archetypes::EngineConfig, AidConfig)>,
+    battery: BatteryConfig,
+    oil: Option<SaeGrade>,
+    fuel: FuelConfig,
+}
+
+/// Validates and converts a vehicle profile at field path `vp` (e.g. `night.vehicle`).
+fn profile_parts(v: &mut Violations, vehicle: &pb::VehicleProfile, vp: &str) -> ProfileParts {
+    let f = |name: &str| format!("{vp}.{name}");
+    v.id(&f("vehicle_id"), &vehicle.vehicle_id, true);
+    let engine_aids = match vehicle.engine.as_ref() {
+        Some(e) => engine_from_pb(v, e, vehicle.aids.as_ref(), &f("engine")),
+        None => {
+            v.add(
+                f("engine"),
+                "is required (an archetype_id or the full geometry)",
+            );
+            None
+        }
+    };
+    let battery = battery_from_pb(v, vehicle.battery.as_ref(), &f("battery"));
+    let oil = match vehicle.oil.as_ref() {
+        None => {
+            v.add(f("oil"), "is required (sae_grade)");
+            None
+        }
+        Some(o) if o.sae_grade.len() > MAX_SAE_GRADE_LEN => {
+            v.add(
+                f("oil.sae_grade"),
+                format!(
+                    "is {} bytes; an SAE J300 grade is at most {MAX_SAE_GRADE_LEN}",
+                    o.sae_grade.len()
+                ),
+            );
+            None
+        }
+        Some(o) => match SaeGrade::parse(&o.sae_grade) {
+            Ok(g) => Some(g),
+            Err(e) => {
+                v.add(
+                    f("oil.sae_grade"),
+                    format!("{:?} is not an SAE J300 grade ({e})", o.sae_grade),
+                );
+                None
+            }
+        },
+    };
+    let fuel = fuel_from_pb(v, vehicle.fuel.as_ref(), &f("fuel"));
+    ProfileParts {
+        engine_aids,
+        battery,
+        oil,
+        fuel,
+    }
+}
+
+/// Validates a vehicle profile on its own (a watched vehicle, before any forecast is known);
+/// `path` is its field path, e.g. `vehicle.vehicle` in a WatchFleet request.
+pub fn check_profile(vehicle: &pb::VehicleProfile, path: &str) -> Result<(), ApiError> {
+    let mut v = Violations::default();
+    profile_parts(&mut v, vehicle, path);
+    v.finish(())
+}
+
+/// Validates a telemetry report on its own; `path` is its field path, e.g.
+/// `telemetry.telemetry` in a WatchFleet request.
+pub fn check_telemetry(t: &pb::VehicleTelemetry, path: &str) -> Result<(), ApiError> {
+    let mut v = Violations::default();
+    telemetry_from_pb(&mut v, Some(t), path);
+    v.finish(())
+}
+
+/// Validates an id field on its own (present when `required`, at most [`MAX_ID_LEN`] bytes).
+pub fn check_id(field: &str, id: &str, required: bool) -> Result<(), ApiError> {
+    let mut v = Violations::default();
+    v.id(field, id, required);
+    v.finish(())
 }
 
 /// Validates and converts one vehicle night. Returns the vehicle id and the model's input.
@@ -640,38 +794,19 @@ pub fn night_from_pb(
     let Some(vehicle) = night.vehicle.as_ref() else {
         return Err(ApiError::field(p("vehicle"), "is required"));
     };
-    let vp = |name: &str| format!("{path}.vehicle.{name}");
-    v.id(&vp("vehicle_id"), &vehicle.vehicle_id, true);
-    let engine_aids = match vehicle.engine.as_ref() {
-        Some(e) => engine_from_pb(&mut v, e, vehicle.aids.as_ref(), &vp("engine")),
-        None => {
-            v.add(
-                vp("engine"),
-                "is required (an archetype_id or the full geometry)",
-            );
-            None
-        }
-    };
-    let battery = battery_from_pb(&mut v, vehicle.battery.as_ref(), &vp("battery"));
-    let oil = match vehicle.oil.as_ref() {
-        None => {
-            v.add(vp("oil"), "is required (sae_grade)");
-            None
-        }
-        Some(o) => match SaeGrade::parse(&o.sae_grade) {
-            Ok(g) => Some(g),
-            Err(e) => {
-                v.add(
-                    vp("oil.sae_grade"),
-                    format!("{:?} is not an SAE J300 grade ({e})", o.sae_grade),
-                );
-                None
-            }
-        },
-    };
-    let fuel = fuel_from_pb(&mut v, vehicle.fuel.as_ref(), &vp("fuel"));
+    let ProfileParts {
+        engine_aids,
+        battery,
+        oil,
+        fuel,
+    } = profile_parts(&mut v, vehicle, &p("vehicle"));
+    v.id(&p("depot_id"), &night.depot_id, false);
     let telemetry = telemetry_from_pb(&mut v, night.telemetry.as_ref(), &p("telemetry"));
     let forecast = match (&night.forecast, night.forecast_zone_id.as_str()) {
+        (_, zone) if zone.len() > MAX_ID_LEN => {
+            v.id(&p("forecast_zone_id"), zone, false);
+            None
+        }
         (Some(f), "") => Some(forecast_from_pb(&mut v, f, &p("forecast"))),
         (Some(_), _) => {
             v.add(
@@ -711,14 +846,13 @@ pub fn night_from_pb(
             _ => None,
         }
     });
-    if let (Some(plan), Some((_, aids))) = (&block_heater_plan, &engine_aids) {
-        if aids.block_heater_w <= 0.0 {
-            v.add(
-                p("block_heater_plan"),
-                "the vehicle has no block heater (vehicle.aids.block_heater_w)",
-            );
-        }
-        let _ = plan;
+    if let (Some(_), Some((_, aids))) = (&block_heater_plan, &engine_aids)
+        && aids.block_heater_w <= 0.0
+    {
+        v.add(
+            p("block_heater_plan"),
+            "the vehicle has no block heater (vehicle.aids.block_heater_w)",
+        );
     }
     let options = options_from_pb(&mut v, night.options.as_ref(), &p("options"));
     if let (Some(dep), Some(at)) = (departure_s, telemetry.observed_at_s)
@@ -749,6 +883,59 @@ pub fn night_from_pb(
         options,
     };
     Ok((vehicle.vehicle_id.clone(), night))
+}
+
+/// The request field (relative to a `VehicleNight`) a model quantity comes from, so that a value
+/// the model refuses is reported at a path of the request the client sent. Quantities the model
+/// derives from several fields (displacement, pressures inside the cylinder…) name the message
+/// they are derived from; `None` means the night as a whole.
+pub fn model_quantity_field(quantity: &str) -> Option<&'static str> {
+    Some(match quantity {
+        "rest_v" | "battery_rest_v" => "telemetry.battery_rest_v",
+        "fuel_level_fraction" => "telemetry.fuel_level_pct",
+        "coolant_t_k" | "reading_t_k" => "telemetry.coolant_c",
+        "fuel_t_k" => "telemetry.fuel_c",
+        "ambient_t_k" => "telemetry.ambient_c",
+        "observed_at_s" | "reading_t_s" | "initial_at_s" => "telemetry.observed_at",
+        "initial_t_k" => "telemetry",
+        "air_t_k" | "cloud_fraction" | "air_spread_k" | "forecast_steps" => "forecast.points",
+        "barometric_pa" => "forecast.barometric_kpa",
+        "forecast_start_s" => "forecast.start_time",
+        "forecast_step_s" => "forecast.step",
+        "departure_s" => "departure_time",
+        "block_heater_on_from_s" | "heater_on_from_s" => "block_heater_plan.on_from",
+        "block_heater_on_until_s" | "heater_on_until_s" => "block_heater_plan.on_until",
+        "block_heater_w" | "heater_power_w" => "vehicle.aids.block_heater_w",
+        "intake_heater_w" => "vehicle.aids.intake_heater_kw",
+        "glow_preheat_s" | "preheat_s" => "vehicle.aids.glow_preheat_s",
+        "bore_m" => "vehicle.engine.bore_mm",
+        "stroke_m" => "vehicle.engine.stroke_mm",
+        "con_rod_m" => "vehicle.engine.con_rod_mm",
+        "cylinders" => "vehicle.engine.cylinders",
+        "min_start_speed_rpm" => "vehicle.engine.min_start_speed_rpm",
+        "starter_power_w" | "starter_rated_power_w" => "vehicle.engine.starter_power_kw",
+        "heat_capacity_j_per_k" => "vehicle.engine.heat_capacity_kj_per_k",
+        "cooldown_time_constant_s" => "vehicle.engine.cooldown_time_constant_h",
+        "measured_compression_pa" | "measured_compression_abs_pa" | "measured_peak_p_pa" => {
+            "vehicle.engine.measured_compression_kpa"
+        }
+        "displacement_m3" | "volume_ratio" | "air_mass_per_cycle_kg" | "air_mass_flow_kg_s" => {
+            "vehicle.engine"
+        }
+        "rated_cca_a" => "vehicle.battery.capacity_cca",
+        "nominal_v" | "starter_nominal_v" => "vehicle.battery.nominal_v",
+        "state_of_charge" => "vehicle.battery.state_of_charge_pct",
+        "health_fraction" | "battery_health_fraction" => "vehicle.battery.health_pct",
+        "sae_hot_grade" | "sae_winter_grade" | "nu1_mm2_per_s" | "nu2_mm2_per_s" => {
+            "vehicle.oil.sae_grade"
+        }
+        "biodiesel_fraction" => "vehicle.fuel.biodiesel_pct",
+        "no1_blend_fraction" => "vehicle.fuel.no1_blend_pct",
+        "cfpp_improvement_k" => "vehicle.fuel.additive.cfpp_improvement_k",
+        "fuel_t_when_added_k" => "vehicle.fuel.additive.fuel_c_when_added",
+        "cloud_point_k" | "cfpp_k" | "pour_point_k" => "vehicle.fuel",
+        _ => return None,
+    })
 }
 
 /// The operator's decision policy: outlook thresholds, the default action target and the
@@ -1040,6 +1227,8 @@ pub fn plan_to_pb(
                 heater_w: candidates[i].heater_w,
                 no_start_without_pct: candidates[i].p_without * 100.0,
                 no_start_with_pct: candidates[i].p_with * 100.0,
+                // Set by the fleet stream, which knows each vehicle's item.
+                item_id: String::new(),
             })
             .collect(),
         expected_no_starts_without: plan.expected_no_starts_without,
@@ -1212,4 +1401,70 @@ pub fn assessment_to_pb(
 /// Cached DescribeModel answer.
 pub(crate) fn cached<T: Clone>(cell: &'static OnceLock<T>, make: impl FnOnce() -> T) -> T {
     cell.get_or_init(make).clone()
+}
+
+#[cfg(test)]
+mod request_path_tests {
+    use super::*;
+    use startmargin_model::ModelError;
+
+    fn field_of(e: ApiError) -> String {
+        match e {
+            ApiError::InvalidArgument(v) => v[0].field.clone(),
+            other => panic!("expected INVALID_ARGUMENT, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn model_quantities_are_reported_at_request_fields() {
+        let out = |quantity| ModelError::OutOfRange {
+            quantity,
+            value: 1.0,
+            reason: "test",
+        };
+        for (quantity, field) in [
+            ("rest_v", "night.telemetry.battery_rest_v"),
+            ("displacement_m3", "night.vehicle.engine"),
+            ("rated_cca_a", "night.vehicle.battery.capacity_cca"),
+            ("air_t_k", "night.forecast.points"),
+            // A quantity the model derives internally: the night as a whole.
+            ("t_k", "night"),
+        ] {
+            assert_eq!(
+                field_of(ApiError::from_model("night", out(quantity))),
+                field,
+                "{quantity}"
+            );
+        }
+    }
+
+    #[test]
+    fn every_mapped_field_is_a_field_of_the_night_message() {
+        // The first segment must be a VehicleNight field; deeper ones are checked by the
+        // end-to-end tests through the real messages.
+        let night_fields = [
+            "vehicle",
+            "telemetry",
+            "forecast",
+            "forecast_zone_id",
+            "departure_time",
+            "block_heater_plan",
+            "options",
+            "depot_id",
+        ];
+        for quantity in [
+            "rest_v",
+            "observed_at_s",
+            "forecast_step_s",
+            "block_heater_on_from_s",
+            "glow_preheat_s",
+            "cooldown_time_constant_s",
+            "health_fraction",
+            "fuel_t_when_added_k",
+        ] {
+            let field = model_quantity_field(quantity).expect("mapped");
+            let head = field.split('.').next().unwrap_or_default();
+            assert!(night_fields.contains(&head), "{quantity} → {field}");
+        }
+    }
 }

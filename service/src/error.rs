@@ -57,8 +57,12 @@ impl ApiError {
     /// Maps a model error found while assessing `path` (the request's vehicle night).
     pub fn from_model(path: &str, e: ModelError) -> Self {
         match e {
+            // Named at the request field the quantity comes from, never at a model-internal name.
             ModelError::OutOfRange { quantity, .. } => {
-                Self::field(format!("{path}.{quantity}"), e.to_string())
+                match crate::convert::model_quantity_field(quantity) {
+                    Some(field) => Self::field(format!("{path}.{field}"), e.to_string()),
+                    None => Self::field(path.to_string(), e.to_string()),
+                }
             }
             ModelError::Inconsistent(_) => Self::field(path.to_string(), e.to_string()),
             ModelError::ForecastTooShort { .. } => Self::FailedPrecondition(format!(

@@ -1,14 +1,22 @@
 //! WatchFleet, the pre-dawn feed: a bidirectional stream that keeps per-stream state (vehicles by
 //! id, zone forecasts shared by their vehicles, last telemetry, departures), re-scores only the
-//! vehicles each update affects on the compute pool (a zone forecast re-scores its vehicles in
-//! parallel parts), and sends alerts (raised and cleared with hysteresis, deterministic ids) and
-//! outlook changes (coalesced per vehicle for a slow reader). A refused update gets its own
-//! `RefusedUpdate` and never ends the stream. No physics here: scoring is [`convert::decide`].
+//! vehicles each update affects on the stream's own lane of the compute pool (one vehicle per
+//! job, at most `in_flight` jobs at once, each within the concurrency budget), and sends alerts
+//! (raised and cleared with hysteresis, deterministic ids) and outlook changes (coalesced per
+//! vehicle for a slow reader). A refused update gets its own `RefusedUpdate` and never ends the
+//! stream. No physics here: scoring is [`convert::decide`].
+//!
+//! Every update is validated on its own, at the field paths of the `WatchFleetRequest` it came
+//! in (a vehicle's profile when it is sent, not when its zone forecast arrives later). Each
+//! vehicle keeps its own clock, its latest telemetry time: an older report is refused, and a
+//! report moves the act-by alerts of its own vehicle only.
 //!
 //! Bounds: at most `watch_max_vehicles_per_stream` vehicles, `watch_max_updates_per_s` updates
-//! per second (faster input is read more slowly), and the input is not read while more than two
-//! unread alerts per vehicle wait (see [`outbox`]), so a slow reader cannot grow memory without
-//! bound and no alert is ever dropped.
+//! per second (faster input is read more slowly); the input is not read, and a re-score submits
+//! no more work, while [`MAX_QUEUED_ALERTS`] alerts or [`MAX_QUEUED_REFUSALS`] refusals wait
+//! unread (see [`outbox`]), so a reader that never reads holds bounded memory and no alert is
+//! dropped; a stream that sends nothing and whose reader takes nothing for
+//! `streams.watch_idle_timeout_s` is ended.
 
 mod outbox;
 pub mod settings;
@@ -24,13 +32,14 @@ use prost_types::Timestamp;
 use startmargin_proto::v1 as pb;
 use startmargin_proto::v1::watch_fleet_request::Update;
 use startmargin_proto::v1::watch_fleet_response::Event;
-use tokio::sync::oneshot;
+use tokio::sync::mpsc;
 use tokio::time::Instant;
 use tokio_stream::Stream;
 use tokio_util::sync::CancellationToken;
 use tonic::{Request, Status};
 use tracing::{Instrument, debug, info, info_span};
 
+use crate::api::pool::{Budget, ComputePool, Job, Lane, QuotaGuard};
 use crate::codec::Inbound;
 use crate::convert::{self, MAX_ID_LEN, ZoneForecasts};
 use crate::error::{ApiError, FieldViolation, to_rpc_status};
@@ -43,20 +52,35 @@ use self::vehicle::{Score, Vehicle, apply_score, clear_all};
 pub use self::settings::WatchSettings;
 pub use self::vehicle::{FIT_FROM_READINGS, HEATER_RISE_K, RING_LEN, alert_id, alert_id_hex};
 
-/// Work for a compute thread; it must catch its own panics.
-pub type Job = Box<dyn FnOnce() + Send + 'static>;
-/// Queues a job on the server's compute pool.
-pub type Submit = Arc<dyn Fn(Job) -> Result<(), ApiError> + Send + Sync>;
 /// The events of a WatchFleet stream.
 pub type WatchResponses =
     Pin<Box<dyn Stream<Item = Result<pb::WatchFleetResponse, Status>> + Send>>;
 
-/// Alert kinds a vehicle can hold at once.
-const KINDS: usize = 2;
+/// Where a watch stream runs its re-scores: its lane of the server's compute pool, the budget it
+/// draws from, and its place in its tenant's stream quota (held until the stream ends).
+#[derive(Debug)]
+pub struct Compute {
+    /// The server's compute pool.
+    pub pool: Arc<ComputePool>,
+    /// This stream's lane.
+    pub lane: Lane,
+    /// The concurrency budget of streams.
+    pub budget: Arc<Budget>,
+    /// The stream's place in its tenant's quota.
+    pub quota: QuotaGuard,
+}
+
+/// Most alerts that wait unread before the stream stops reading input and submitting re-scores.
+pub const MAX_QUEUED_ALERTS: usize = 256;
+/// Most refusals that wait unread before the stream stops reading input.
+pub const MAX_QUEUED_REFUSALS: usize = 64;
+
+/// Field path prefix of the night a watched vehicle is scored as; violations under it are
+/// renamed to the paths of the update they came from (see [`request_path`]).
+const NIGHT: &str = "night";
+
 /// Tag of `WatchFleetRequest.sequence`, read from an undecodable update to name it.
 const SEQUENCE_TAG: u32 = 6;
-/// Fewest vehicles per part of a parallel re-score.
-const MIN_PART: usize = 16;
 
 /// Message of the status that ends a watch stream when the server shuts down.
 pub const DRAINING_MESSAGE: &str = "server is draining";
@@ -65,7 +89,7 @@ pub const DRAINING_MESSAGE: &str = "server is draining";
 /// stream carries the events.
 pub fn start(
     request: Request<Inbound<pb::WatchFleetRequest>>,
-    submit: Submit,
+    compute: Compute,
     settings: WatchSettings,
     draining: CancellationToken,
 ) -> WatchResponses {
@@ -75,14 +99,16 @@ pub fn start(
     let span = info_span!("watch_fleet", tenant = tenant.as_str());
     let stream = WatchStream {
         tenant,
-        submit,
+        compute,
         settings,
         vehicles: HashMap::new(),
         zones: Arc::new(HashMap::new()),
-        now_s: None,
         outbox: Arc::clone(&outbox),
+        draining,
+        idle_at: Instant::now() + settings.idle_timeout,
+        taken_seen: 0,
     };
-    tokio::spawn(stream.run(inbound, draining).instrument(span));
+    tokio::spawn(stream.run(inbound).instrument(span));
     Box::pin(Reader(outbox))
 }
 
@@ -168,15 +194,21 @@ impl Bucket {
 /// One WatchFleet stream's state.
 struct WatchStream {
     tenant: Tenant,
-    submit: Submit,
+    compute: Compute,
     settings: WatchSettings,
     vehicles: HashMap<Box<str>, Vehicle>,
-    /// Zone forecasts; copy-on-write, so parts computing keep the ones they started with.
+    /// Zone forecasts; copy-on-write, so jobs computing keep the ones they started with.
     zones: Arc<ZoneForecasts>,
-    /// Stream time: the latest telemetry time seen (UTC seconds); act-by alerts follow it.
-    now_s: Option<i64>,
     outbox: Arc<Outbox>,
+    draining: CancellationToken,
+    /// When the stream counts as idle, unless an update comes or the reader takes an event.
+    idle_at: Instant,
+    /// Events the reader had taken when `idle_at` was last set.
+    taken_seen: u64,
 }
+
+/// Why a stream stops: `None` ends it with OK (input closed, reader gone).
+type Stop = Option<Status>;
 
 /// The vehicle an update changed directly, with its state before (None when new), restored if
 /// the update is refused.
@@ -187,46 +219,53 @@ type Applied = (Vec<Box<str>>, Undo);
 type Refusal = (String, ApiError);
 
 impl WatchStream {
-    async fn run(
-        mut self,
-        mut inbound: Inbound<pb::WatchFleetRequest>,
-        draining: CancellationToken,
-    ) {
+    async fn run(mut self, mut inbound: Inbound<pb::WatchFleetRequest>) {
         let mut bucket = Bucket::new(self.settings.max_updates_per_s);
         let mut updates: u64 = 0;
         let status = loop {
-            // Read no more input while the reader is behind on alerts: bounded, and none dropped.
-            let limit = self.vehicles.len().max(1) * KINDS;
-            tokio::select! {
-                biased;
-                () = draining.cancelled() => break Some(draining_status()),
-                open = self.outbox.wait_below(limit) => if !open { break None },
+            // Read no more input while the reader is behind: bounded, and no alert dropped.
+            if let Err(stop) = self.wait_for_room().await {
+                break stop;
             }
             if let Some(wait) = bucket.take() {
                 tokio::select! {
                     biased;
-                    () = draining.cancelled() => break Some(draining_status()),
+                    () = self.draining.cancelled() => break Some(draining_status()),
                     () = tokio::time::sleep(wait) => {}
                 }
             }
-            let message = tokio::select! {
-                biased;
-                () = draining.cancelled() => break Some(draining_status()),
-                m = inbound.message() => m,
+            let message = loop {
+                tokio::select! {
+                    biased;
+                    () = self.draining.cancelled() => break Err(Some(draining_status())),
+                    m = inbound.message() => break Ok(m),
+                    () = tokio::time::sleep_until(self.idle_at) => {
+                        if let Err(stop) = self.check_idle() {
+                            break Err(stop);
+                        }
+                    }
+                }
             };
             match message {
-                Ok(Some(Ok(request))) => {
+                Ok(Ok(Some(Ok(request)))) => {
                     updates += 1;
-                    self.handle(request).await;
+                    self.idle_at = Instant::now() + self.settings.idle_timeout;
+                    if let Err(stop) = self.handle(request).await {
+                        break stop;
+                    }
                 }
-                Ok(Some(Err(bad))) => {
+                Ok(Ok(Some(Err(bad)))) => {
                     // Undecodable or over-size: refused under the sequence it carries, if readable.
                     updates += 1;
+                    self.idle_at = Instant::now() + self.settings.idle_timeout;
                     let seq = bad.varint_field(SEQUENCE_TAG).unwrap_or_default();
-                    self.refuse(seq, String::new(), bad.error, Vec::new());
+                    if let Err(stop) = self.refuse(seq, String::new(), bad.error, Vec::new()) {
+                        break stop;
+                    }
                 }
-                Ok(None) => break None,
-                Err(status) => break Some(status),
+                Ok(Ok(None)) => break None,
+                Ok(Err(status)) => break Some(status),
+                Err(stop) => break stop,
             }
         };
         info!(
@@ -242,30 +281,65 @@ impl WatchStream {
         }
     }
 
+    /// `Err` when the stream has been idle (no update, no event taken) for the idle timeout;
+    /// otherwise moves the idle deadline on.
+    fn check_idle(&mut self) -> Result<(), Stop> {
+        let taken = self.outbox.taken();
+        if taken != self.taken_seen {
+            self.taken_seen = taken;
+            self.idle_at = Instant::now() + self.settings.idle_timeout;
+            return Ok(());
+        }
+        Err(Some(
+            ApiError::Unavailable(format!(
+                "watch stream idle for {} s (no update sent, no event read); open a new stream",
+                self.settings.idle_timeout.as_secs_f64()
+            ))
+            .into(),
+        ))
+    }
+
+    /// Waits until the unread alerts and refusals are below their bounds.
+    async fn wait_for_room(&mut self) -> Result<(), Stop> {
+        loop {
+            tokio::select! {
+                biased;
+                () = self.draining.cancelled() => return Err(Some(draining_status())),
+                open = self.outbox.wait_below(MAX_QUEUED_ALERTS, MAX_QUEUED_REFUSALS) => {
+                    return if open { Ok(()) } else { Err(None) };
+                }
+                () = tokio::time::sleep_until(self.idle_at) => self.check_idle()?,
+            }
+        }
+    }
+
     /// Applies one update, re-scores what it affects and queues the events.
-    async fn handle(&mut self, request: pb::WatchFleetRequest) {
+    async fn handle(&mut self, request: pb::WatchFleetRequest) -> Result<(), Stop> {
         let seq = request.sequence;
         let mut events = Vec::new();
-        let (path, affected, undo) = match request.update {
+        let (source, affected, undo) = match request.update {
             Some(Update::Vehicle(w)) => match self.upsert(w, &mut events) {
-                Ok((ids, undo)) => ("vehicle", ids, undo),
+                Ok((ids, undo)) => (Source::Vehicle, ids, undo),
                 Err((id, e)) => return self.refuse(seq, id, e, events),
             },
             Some(Update::Telemetry(t)) => match self.telemetry(t) {
-                Ok((ids, undo)) => ("telemetry", ids, undo),
+                Ok((ids, undo)) => (Source::Telemetry, ids, undo),
                 Err((id, e)) => return self.refuse(seq, id, e, events),
             },
             Some(Update::ZoneForecast(z)) => match self.zone(z) {
-                Ok(ids) => ("zone_forecast", ids, None),
+                Ok(ids) => (Source::ZoneForecast, ids, None),
                 Err(e) => return self.refuse(seq, String::new(), e, events),
             },
             Some(Update::Departure(d)) => match self.departure(d, &mut events) {
-                Ok((ids, undo)) => ("departure", ids, undo),
+                Ok((ids, undo)) => (Source::Departure, ids, undo),
                 Err((id, e)) => return self.refuse(seq, id, e, events),
             },
             Some(Update::Removal(r)) => {
+                if let Err(e) = convert::check_id("removal.vehicle_id", &r.vehicle_id, true) {
+                    return self.refuse(seq, r.vehicle_id, e, events);
+                }
                 self.remove(&r.vehicle_id, &mut events);
-                ("removal", Vec::new(), None)
+                (Source::Removal, Vec::new(), None)
             }
             None => {
                 let e = ApiError::field(
@@ -275,18 +349,22 @@ impl WatchStream {
                 return self.refuse(seq, String::new(), e, events);
             }
         };
-        self.score(seq, path, affected, undo, &mut events).await;
         self.outbox.push(events);
+        self.score(seq, source, affected, undo).await
     }
 
-    fn refuse(&self, seq: u64, vehicle_id: String, e: ApiError, mut events: Vec<Event>) {
-        debug!(seq, vehicle_id, code = ?e.code(), "update refused");
-        events.push(Event::Refused(pb::RefusedUpdate {
-            sequence: seq,
-            vehicle_id,
-            error: Some(to_rpc_status(e)),
-        }));
+    /// Queues the refusal of an update (after `events`); the stream goes on.
+    fn refuse(
+        &self,
+        seq: u64,
+        vehicle_id: String,
+        e: ApiError,
+        mut events: Vec<Event>,
+    ) -> Result<(), Stop> {
+        debug!(seq, code = ?e.code(), "update refused");
+        events.push(refused(seq, &vehicle_id, e));
         self.outbox.push(events);
+        Ok(())
     }
 
     fn upsert(
@@ -312,10 +390,6 @@ impl WatchStream {
                 "vehicle.vehicle.vehicle_id",
                 "must not be empty".to_string(),
             ),
-            Some(v) if v.vehicle_id.len() > MAX_ID_LEN => violation(
-                "vehicle.vehicle.vehicle_id",
-                format!("longer than {MAX_ID_LEN} bytes"),
-            ),
             Some(_) => {}
         }
         if w.forecast_zone_id.is_empty() || w.forecast_zone_id.len() > MAX_ID_LEN {
@@ -327,11 +401,22 @@ impl WatchStream {
         if w.depot_id.len() > MAX_ID_LEN {
             violation(
                 "vehicle.depot_id",
-                format!("longer than {MAX_ID_LEN} bytes"),
+                format!("is {} bytes, longer than {MAX_ID_LEN}", w.depot_id.len()),
             );
         }
         if let Err(e) = check_time(w.departure_time.as_ref()) {
             violation("vehicle.departure_time", e.to_string());
+        }
+        // The whole profile now, at this update's paths: later updates must not carry its faults.
+        if let Some(profile) = w.vehicle.as_ref()
+            && let Err(ApiError::InvalidArgument(found)) =
+                convert::check_profile(profile, "vehicle.vehicle")
+        {
+            for f in found {
+                if !bad.iter().any(|b| b.field == f.field) {
+                    bad.push(f);
+                }
+            }
         }
         if !bad.is_empty() {
             return Err((id, ApiError::InvalidArgument(bad)));
@@ -382,6 +467,7 @@ impl WatchStream {
 
     fn telemetry(&mut self, t: pb::TelemetryUpdate) -> Result<Applied, Refusal> {
         let id = t.vehicle_id.clone();
+        convert::check_id("telemetry.vehicle_id", &id, true).map_err(|e| (id.clone(), e))?;
         let Some(v) = self.vehicles.get_mut(t.vehicle_id.as_str()) else {
             return Err((
                 id,
@@ -391,32 +477,35 @@ impl WatchStream {
                 ),
             ));
         };
-        let at_s = match t.telemetry.as_ref() {
-            None => return Err((id, ApiError::field("telemetry.telemetry", "is required"))),
-            Some(tel) => match check_time(tel.observed_at.as_ref()) {
-                Ok(s) => s,
-                Err(e) => return Err((id, ApiError::field("telemetry.telemetry.observed_at", e))),
-            },
+        let Some(tel) = t.telemetry.as_ref() else {
+            return Err((id, ApiError::field("telemetry.telemetry", "is required")));
         };
+        let observed = match check_time(tel.observed_at.as_ref()) {
+            Ok(_) => tel.observed_at.unwrap_or_default(),
+            Err(e) => return Err((id, ApiError::field("telemetry.telemetry.observed_at", e))),
+        };
+        convert::check_telemetry(tel, "telemetry.telemetry").map_err(|e| (id.clone(), e))?;
+        // One clock per vehicle: a report older than the one held would undo what is known.
+        if let Some(held) = v.telemetry.as_ref().and_then(|h| h.observed_at)
+            && (observed.seconds, observed.nanos) <= (held.seconds, held.nanos)
+        {
+            return Err((
+                id,
+                ApiError::field(
+                    "telemetry.telemetry.observed_at",
+                    format!(
+                        "{} is not newer than the report held for this vehicle ({}): \
+                         send a vehicle's reports in time order",
+                        utc(observed.seconds),
+                        utc(held.seconds)
+                    ),
+                ),
+            ));
+        }
         let key: Box<str> = id.as_str().into();
         let before = v.clone();
-        v.observe(&t, at_s);
-        let mut ids = vec![key.clone()];
-        if self.now_s.is_none_or(|now| at_s > now) {
-            self.now_s = Some(at_s);
-            // Time moved on: vehicles whose act-by alert is now due are affected too.
-            let mut due: Vec<Box<str>> = self
-                .vehicles
-                .iter()
-                .filter(|(k, v)| {
-                    **k != key && v.act_alert.is_none() && v.act_due_s.is_some_and(|d| d <= at_s)
-                })
-                .map(|(k, _)| k.clone())
-                .collect();
-            due.sort();
-            ids.extend(due);
-        }
-        Ok((ids, Some((key, Some(before)))))
+        v.observe(&t, observed.seconds);
+        Ok((vec![key.clone()], Some((key, Some(before)))))
     }
 
     fn zone(&mut self, z: pb::WatchZoneForecast) -> Result<Vec<Box<str>>, ApiError> {
@@ -443,6 +532,7 @@ impl WatchStream {
         events: &mut Vec<Event>,
     ) -> Result<Applied, Refusal> {
         let id = d.vehicle_id.clone();
+        convert::check_id("departure.vehicle_id", &id, true).map_err(|e| (id.clone(), e))?;
         let departure = match check_time(d.departure_time.as_ref()) {
             Ok(_) => d.departure_time.unwrap_or_default(),
             Err(e) => return Err((id, ApiError::field("departure.departure_time", e))),
@@ -481,123 +571,217 @@ impl WatchStream {
         }
     }
 
-    /// Re-scores `ids` on the compute pool (in parallel parts) and turns the scores into events.
+    /// Re-scores `ids` on the stream's lane, one vehicle per job and at most `in_flight` jobs
+    /// at once, each within the concurrency budget; queues each vehicle's events as its score
+    /// comes back, and submits no more while the reader is behind.
     async fn score(
         &mut self,
         seq: u64,
-        path: &'static str,
+        source: Source,
         ids: Vec<Box<str>>,
         mut undo: Undo,
-        events: &mut Vec<Event>,
-    ) {
-        let mut nights = Vec::with_capacity(ids.len());
-        for id in ids {
-            let Some(v) = self.vehicles.get(&id) else {
-                continue;
-            };
-            if !self.zones.contains_key(&*v.zone) {
-                // Scored when its zone forecast arrives.
-                continue;
-            }
-            match v.night() {
-                Ok(night) => nights.push((id, night)),
-                Err(e) => debug!(%e, "stored profile does not decode"),
-            }
-        }
-        if nights.is_empty() {
-            return;
-        }
-        let parts = self
-            .settings
-            .threads
-            .max(1)
-            .min(nights.len().div_ceil(MIN_PART))
-            .max(1);
-        let per_part = nights.len().div_ceil(parts);
-        let mut waiting = Vec::with_capacity(parts);
-        let mut rest = nights;
-        while !rest.is_empty() {
-            let part: Vec<_> = rest.drain(..per_part.min(rest.len())).collect();
-            let (tx, rx) = oneshot::channel();
-            let zones = Arc::clone(&self.zones);
-            let policy = self.settings.policy;
-            let ids: Vec<Box<str>> = part.iter().map(|(id, _)| id.clone()).collect();
-            let job: Job = Box::new(move || {
-                let out: Vec<(Box<str>, Result<Score, ApiError>)> = part
-                    .into_iter()
-                    .map(|(id, night)| {
-                        let scored = catch_unwind(AssertUnwindSafe(|| {
-                            convert::decide(&night, path, &zones, &policy)
-                        }))
-                        .unwrap_or_else(|_| {
-                            Err(ApiError::Internal("the assessment panicked".to_string()))
-                        })
-                        .map(|d| Score {
-                            outlook: d.message.outlook,
-                            no_start_pct: d.message.no_start_pct,
-                            margin_k: d.message.start_margin_k,
-                            explanation: d.message.explanation,
-                            actions: d.message.actions,
-                        });
-                        (id, scored)
-                    })
-                    .collect();
-                let _ = tx.send(out);
-            });
-            match (self.submit)(job) {
-                Ok(()) => waiting.push((ids, Some(rx))),
-                Err(_) => waiting.push((ids, None)),
-            }
-        }
-        for (ids, rx) in waiting {
-            let results = match rx {
-                Some(rx) => rx.await.unwrap_or_default(),
-                None => Vec::new(),
-            };
-            if results.is_empty() {
-                for id in ids {
-                    let e = ApiError::Unavailable("compute pool unavailable".to_string());
-                    events.push(refused(seq, &id, e));
-                }
-                continue;
-            }
-            for (id, result) in results {
-                match result {
-                    Ok(score) => {
-                        let Some(v) = self.vehicles.get_mut(&id) else {
-                            continue;
-                        };
-                        let mut alerts = Vec::new();
-                        let change =
-                            apply_score(&id, v, score, self.now_s, &self.settings, &mut alerts);
-                        for a in &alerts {
-                            if a.state == pb::AlertState::Raised as i32 {
-                                metrics::alert_raised();
-                            } else {
-                                metrics::alert_cleared();
-                            }
-                        }
-                        events.extend(alerts.into_iter().map(Event::Alert));
-                        events.push(Event::OutlookChange(change));
+    ) -> Result<(), Stop> {
+        // A vehicle without its zone forecast is scored when the forecast arrives.
+        let ready: Vec<Box<str>> = ids
+            .into_iter()
+            .filter(|id| {
+                self.vehicles
+                    .get(id)
+                    .is_some_and(|v| self.zones.contains_key(&*v.zone))
+            })
+            .collect();
+        let mut waiting = ready.into_iter();
+        let window = self.settings.in_flight.max(1);
+        type Done = (usize, Box<str>, Result<Score, ApiError>);
+        let (done_tx, mut done) = mpsc::channel::<Done>(window);
+        // Scores are applied in submission order (the same input gives the same event order
+        // whichever thread finishes first); at most `window` wait here.
+        let mut finished: std::collections::BTreeMap<usize, (Box<str>, Result<Score, ApiError>)> =
+            std::collections::BTreeMap::new();
+        let (mut submitted, mut applied) = (0usize, 0usize);
+        let mut more = true;
+        loop {
+            while more && submitted - applied < window {
+                let Some(id) = waiting.next() else {
+                    more = false;
+                    break;
+                };
+                let night = match self.vehicles.get(&id).map(Vehicle::night) {
+                    Some(Ok(night)) => night,
+                    Some(Err(e)) => {
+                        debug!(%e, "stored profile does not decode");
+                        continue;
                     }
+                    None => continue,
+                };
+                self.wait_for_room().await?;
+                let permit = tokio::select! {
+                    biased;
+                    () = self.draining.cancelled() => return Err(Some(draining_status())),
+                    p = self.compute.budget.acquire(&self.tenant) => p,
+                };
+                let permit = match permit {
+                    Ok(p) => p,
                     Err(e) => {
-                        // The update that caused it is undone for its own vehicle.
-                        if let Some((undo_id, before)) = undo.take_if(|(u, _)| *u == id) {
-                            match before {
-                                Some(before) => {
-                                    self.vehicles.insert(undo_id, before);
-                                }
-                                None => {
-                                    self.vehicles.remove(&undo_id);
-                                    metrics::add_vehicles_watched(-1);
-                                }
-                            }
-                        }
-                        events.push(refused(seq, &id, e));
+                        self.outbox.push(vec![refused(seq, &id, e)]);
+                        continue;
                     }
+                };
+                let zones = Arc::clone(&self.zones);
+                let policy = self.settings.policy;
+                let tx = done_tx.clone();
+                let job_id = id.clone();
+                let n = submitted;
+                let job: Job = Box::new(move || {
+                    let scored = catch_unwind(AssertUnwindSafe(|| {
+                        convert::decide(&night, NIGHT, &zones, &policy)
+                    }))
+                    .unwrap_or_else(|_| {
+                        Err(ApiError::Internal("the assessment panicked".to_string()))
+                    })
+                    .map(|d| Score {
+                        outlook: d.message.outlook,
+                        no_start_pct: d.message.no_start_pct,
+                        margin_k: d.message.start_margin_k,
+                        explanation: d.message.explanation,
+                        actions: d.message.actions,
+                    });
+                    drop(permit);
+                    // Capacity `window` and at most `window` jobs unapplied: never full.
+                    let _ = tx.try_send((n, job_id, scored));
+                });
+                match self.compute.pool.submit(self.compute.lane, job) {
+                    Ok(()) => submitted += 1,
+                    Err(e) => self.outbox.push(vec![refused(seq, &id, e)]),
                 }
             }
+            if submitted == applied {
+                return Ok(());
+            }
+            let (id, result) = match finished.remove(&applied) {
+                Some(next) => next,
+                None => {
+                    let Some((n, id, result)) = done.recv().await else {
+                        return Ok(());
+                    };
+                    finished.insert(n, (id, result));
+                    continue;
+                }
+            };
+            applied += 1;
+            let mut events = Vec::new();
+            match result {
+                Ok(score) => {
+                    let Some(v) = self.vehicles.get_mut(&id) else {
+                        continue;
+                    };
+                    let mut alerts = Vec::new();
+                    let clock_s = v.clock_s();
+                    let change = apply_score(&id, v, score, clock_s, &self.settings, &mut alerts);
+                    for a in &alerts {
+                        if a.state == pb::AlertState::Raised as i32 {
+                            metrics::alert_raised();
+                        } else {
+                            metrics::alert_cleared();
+                        }
+                    }
+                    events.extend(alerts.into_iter().map(Event::Alert));
+                    events.push(Event::OutlookChange(change));
+                }
+                Err(e) => {
+                    // The update that caused it is undone for its own vehicle.
+                    if let Some((undo_id, before)) = undo.take_if(|(u, _)| *u == id) {
+                        match before {
+                            Some(before) => {
+                                self.vehicles.insert(undo_id, before);
+                            }
+                            None => {
+                                self.vehicles.remove(&undo_id);
+                                metrics::add_vehicles_watched(-1);
+                            }
+                        }
+                    }
+                    events.push(refused(seq, &id, request_error(e, source)));
+                }
+            }
+            self.outbox.push(events);
         }
+    }
+}
+
+/// The kind of update being applied: where the parts of a scored night came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Source {
+    Vehicle,
+    Telemetry,
+    ZoneForecast,
+    Departure,
+    Removal,
+}
+
+impl Source {
+    /// The update's field name in `WatchFleetRequest`.
+    fn field(self) -> &'static str {
+        match self {
+            Source::Vehicle => "vehicle",
+            Source::Telemetry => "telemetry",
+            Source::ZoneForecast => "zone_forecast",
+            Source::Departure => "departure",
+            Source::Removal => "removal",
+        }
+    }
+}
+
+/// The `WatchFleetRequest` path of a field of the night a watched vehicle is scored as: each
+/// part of it came in its own update (the profile, zone and depot in `vehicle`, the readings in
+/// `telemetry`, the forecast in `zone_forecast`, the departure in `vehicle` or `departure`).
+fn request_path(night_path: &str, source: Source) -> String {
+    let Some(rest) = night_path
+        .strip_prefix(NIGHT)
+        .and_then(|r| r.strip_prefix('.'))
+    else {
+        return source.field().to_string();
+    };
+    let (head, tail) = rest.split_once('.').unwrap_or((rest, ""));
+    let join = |prefix: &str| {
+        if tail.is_empty() {
+            prefix.to_string()
+        } else {
+            format!("{prefix}.{tail}")
+        }
+    };
+    match head {
+        "vehicle" => join("vehicle.vehicle"),
+        "telemetry" => join("telemetry.telemetry"),
+        "forecast" => join("zone_forecast.forecast"),
+        "forecast_zone_id" => "vehicle.forecast_zone_id".to_string(),
+        "depot_id" => "vehicle.depot_id".to_string(),
+        "departure_time" if source == Source::Departure => "departure.departure_time".to_string(),
+        "departure_time" => "vehicle.departure_time".to_string(),
+        // The heater plan is inferred from the reports' block_heater_on.
+        "block_heater_plan" => "telemetry.block_heater_on".to_string(),
+        _ => source.field().to_string(),
+    }
+}
+
+/// A scoring error with its field paths renamed to the request's (see [`request_path`]).
+fn request_error(e: ApiError, source: Source) -> ApiError {
+    match e {
+        ApiError::InvalidArgument(found) => ApiError::InvalidArgument(
+            found
+                .into_iter()
+                .map(|f| FieldViolation {
+                    field: request_path(&f.field, source),
+                    description: f.description,
+                })
+                .collect(),
+        ),
+        ApiError::FailedPrecondition(m) => ApiError::FailedPrecondition(
+            m.strip_prefix(NIGHT)
+                .and_then(|r| r.strip_prefix(": "))
+                .map_or(m.clone(), |r| format!("{}: {r}", source.field())),
+        ),
+        other => other,
     }
 }
 
@@ -609,12 +793,40 @@ fn push_cleared(events: &mut Vec<Event>, alerts: Vec<pb::Alert>) {
     }
 }
 
+/// A refusal; a vehicle id longer than [`MAX_ID_LEN`] is not echoed (it is the fault).
 fn refused(seq: u64, vehicle_id: &str, e: ApiError) -> Event {
+    let vehicle_id = if vehicle_id.len() > MAX_ID_LEN {
+        ""
+    } else {
+        vehicle_id
+    };
     Event::Refused(pb::RefusedUpdate {
         sequence: seq,
         vehicle_id: vehicle_id.to_string(),
         error: Some(to_rpc_status(e)),
     })
+}
+
+/// UTC seconds as `YYYY-MM-DDTHH:MM:SSZ`, for messages.
+fn utc(at_s: i64) -> String {
+    // Days since 1970 to the proleptic Gregorian date, by 400-year eras.
+    let days = at_s.div_euclid(86_400);
+    let secs = at_s.rem_euclid(86_400);
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = yoe + era * 400 + i64::from(m <= 2);
+    format!(
+        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
+        secs / 3600,
+        (secs % 3600) / 60,
+        secs % 60
+    )
 }
 
 /// Checks a required UTC time (1970 to 2200); returns its seconds.
@@ -633,4 +845,63 @@ fn check_time(t: Option<&Timestamp>) -> Result<i64, &'static str> {
 
 fn draining_status() -> Status {
     ApiError::Unavailable(DRAINING_MESSAGE.to_string()).into()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn scored_night_paths_become_the_paths_of_the_update_they_came_in() {
+        for (night, source, request) in [
+            (
+                "night.vehicle.battery.capacity_cca",
+                Source::ZoneForecast,
+                "vehicle.vehicle.battery.capacity_cca",
+            ),
+            (
+                "night.telemetry.observed_at",
+                Source::Departure,
+                "telemetry.telemetry.observed_at",
+            ),
+            (
+                "night.forecast.points[3].air_c",
+                Source::Telemetry,
+                "zone_forecast.forecast.points[3].air_c",
+            ),
+            (
+                "night.departure_time",
+                Source::Departure,
+                "departure.departure_time",
+            ),
+            (
+                "night.departure_time",
+                Source::Vehicle,
+                "vehicle.departure_time",
+            ),
+            (
+                "night.block_heater_plan",
+                Source::Telemetry,
+                "telemetry.block_heater_on",
+            ),
+            ("night", Source::ZoneForecast, "zone_forecast"),
+        ] {
+            assert_eq!(request_path(night, source), request, "{night}");
+        }
+        let e = request_error(
+            ApiError::FailedPrecondition("night: the forecast does not cover it".into()),
+            Source::ZoneForecast,
+        );
+        assert_eq!(
+            e,
+            ApiError::FailedPrecondition("zone_forecast: the forecast does not cover it".into())
+        );
+    }
+
+    #[test]
+    fn utc_times_read_as_calendar_dates() {
+        assert_eq!(utc(0), "1970-01-01T00:00:00Z");
+        assert_eq!(utc(1_736_877_600), "2025-01-14T18:00:00Z");
+        assert_eq!(utc(951_782_400), "2000-02-29T00:00:00Z");
+    }
 }

@@ -1,7 +1,7 @@
 //! The output of a WatchFleet stream: alerts and refusals queue in order and are never dropped;
-//! outlook changes are coalesced per vehicle (latest wins). The reader takes them as the
-//! transport asks (a slow client is read slowly); the writer waits while too many alerts are
-//! unread, so memory stays bounded.
+//! outlook changes are coalesced per vehicle (latest wins, so at most one per watched vehicle).
+//! The reader takes them as the transport asks (a slow client is read slowly); the writer waits
+//! while too many alerts or refusals are unread, so memory stays bounded.
 
 use std::collections::{HashMap, VecDeque};
 use std::pin::Pin;
@@ -18,6 +18,9 @@ use tonic::Status;
 struct Queue {
     events: VecDeque<Event>,
     alerts_queued: usize,
+    refusals_queued: usize,
+    /// Events the reader has taken so far.
+    taken: u64,
     outlooks: HashMap<Box<str>, pb::OutlookChange>,
     outlook_order: VecDeque<Box<str>>,
     end: Option<Status>,
@@ -55,8 +58,10 @@ impl Outbox {
                         }
                     }
                     other => {
-                        if matches!(other, Event::Alert(_)) {
-                            q.alerts_queued += 1;
+                        match other {
+                            Event::Alert(_) => q.alerts_queued += 1,
+                            Event::Refused(_) => q.refusals_queued += 1,
+                            Event::OutlookChange(_) => {}
                         }
                         q.events.push_back(other);
                     }
@@ -82,8 +87,9 @@ impl Outbox {
         }
     }
 
-    /// Waits until at most `limit` alerts are unread. `false` when the reader has left.
-    pub(crate) async fn wait_below(&self, limit: usize) -> bool {
+    /// Waits until fewer than `alerts` alerts and `refusals` refusals are unread. `false` when
+    /// the reader has left.
+    pub(crate) async fn wait_below(&self, alerts: usize, refusals: usize) -> bool {
         loop {
             let taken = self.taken.notified();
             {
@@ -91,12 +97,17 @@ impl Outbox {
                 if q.reader_gone {
                     return false;
                 }
-                if q.alerts_queued <= limit {
+                if q.alerts_queued < alerts && q.refusals_queued < refusals {
                     return true;
                 }
             }
             taken.await;
         }
+    }
+
+    /// Events the reader has taken so far.
+    pub(crate) fn taken(&self) -> u64 {
+        self.lock().taken
     }
 
     /// Whether the reader has left.
@@ -116,8 +127,10 @@ impl Stream for Reader {
         let outbox = &self.0;
         let mut q = outbox.lock();
         let event = if let Some(e) = q.events.pop_front() {
-            if matches!(e, Event::Alert(_)) {
-                q.alerts_queued -= 1;
+            match e {
+                Event::Alert(_) => q.alerts_queued -= 1,
+                Event::Refused(_) => q.refusals_queued -= 1,
+                Event::OutlookChange(_) => {}
             }
             Some(e)
         } else if let Some(key) = q.outlook_order.pop_front() {
@@ -126,6 +139,7 @@ impl Stream for Reader {
             None
         };
         if let Some(event) = event {
+            q.taken += 1;
             drop(q);
             outbox.taken.notify_waiters();
             return Poll::Ready(Some(Ok(pb::WatchFleetResponse { event: Some(event) })));

@@ -1,10 +1,73 @@
 //! The watch's operator settings, taken from the configuration: stream bounds, update rate, alert
-//! lead, quiet hour and hysteresis, with the outlook thresholds they apply to.
+//! lead, quiet hour and hysteresis, with the outlook thresholds they apply to; and the `[streams]`
+//! section of the configuration (fair sharing of the compute pool between streams and tenants,
+//! per-tenant stream quotas, the watch idle timeout).
 
+use serde::{Deserialize, Serialize};
 use startmargin_proto::v1 as pb;
 
 use crate::config::Config;
 use crate::convert::Policy;
+
+/// The `[streams]` section of the configuration: how streaming calls share the server.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct StreamSettings {
+    /// Streaming calls (AssessFleet and WatchFleet together) one tenant may hold open at once;
+    /// one more is refused with RESOURCE_EXHAUSTED.
+    pub max_streams_per_tenant: usize,
+    /// Share of `concurrency_limit` that streams (fleet vehicles and watch re-scores) may hold
+    /// at once, percent; the rest stays free for unary calls.
+    pub stream_share_pct: f64,
+    /// Assessments one tenant's streams may have in flight at once.
+    pub max_in_flight_per_tenant: usize,
+    /// A WatchFleet stream that sends no update and whose reader takes no event for this long
+    /// is ended with UNAVAILABLE, seconds.
+    pub watch_idle_timeout_s: f64,
+}
+
+impl Default for StreamSettings {
+    fn default() -> Self {
+        Self {
+            max_streams_per_tenant: 64,
+            stream_share_pct: 50.0,
+            max_in_flight_per_tenant: 16,
+            watch_idle_timeout_s: 1800.0,
+        }
+    }
+}
+
+impl StreamSettings {
+    /// Every problem of these keys, one message each (empty when valid).
+    pub fn problems(&self) -> Vec<String> {
+        let mut problems = Vec::new();
+        if self.max_streams_per_tenant == 0 {
+            problems.push("streams.max_streams_per_tenant must be at least 1".to_string());
+        }
+        let share = self.stream_share_pct;
+        if !(share > 0.0 && share <= 100.0) {
+            problems.push(format!(
+                "streams.stream_share_pct = {share} must be above 0 and at most 100"
+            ));
+        }
+        if self.max_in_flight_per_tenant == 0 {
+            problems.push("streams.max_in_flight_per_tenant must be at least 1".to_string());
+        }
+        let idle = self.watch_idle_timeout_s;
+        if !(idle.is_finite() && (1.0..=86_400.0).contains(&idle)) {
+            problems.push(format!(
+                "streams.watch_idle_timeout_s = {idle} must be between 1 and 86400"
+            ));
+        }
+        problems
+    }
+
+    /// Assessments all streams together may hold: `stream_share_pct` of `concurrency_limit`,
+    /// at least one.
+    pub fn stream_permits(&self, concurrency_limit: usize) -> usize {
+        ((concurrency_limit as f64 * self.stream_share_pct / 100.0).floor() as usize).max(1)
+    }
+}
 
 /// Settings of every WatchFleet stream of a server.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -21,8 +84,12 @@ pub struct WatchSettings {
     pub hysteresis_pct: f64,
     /// Decision policy (outlook thresholds, action target).
     pub policy: Policy,
-    /// Compute threads (how many parts a zone re-score is split into).
+    /// Compute threads.
     pub threads: usize,
+    /// Re-scores one stream has in flight at once (its budget on the compute pool).
+    pub in_flight: usize,
+    /// No update read and no event taken for this long ends the stream.
+    pub idle_timeout: std::time::Duration,
 }
 
 impl WatchSettings {
@@ -36,6 +103,8 @@ impl WatchSettings {
             hysteresis_pct: config.watch_hysteresis_pct,
             policy: config.policy(),
             threads: config.effective_compute_threads(),
+            in_flight: config.fleet_in_flight_per_stream(),
+            idle_timeout: std::time::Duration::from_secs_f64(config.streams.watch_idle_timeout_s),
         }
     }
 

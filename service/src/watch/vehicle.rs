@@ -134,6 +134,14 @@ impl Vehicle {
         }
     }
 
+    /// The vehicle's own clock: the time of its latest telemetry report (UTC seconds).
+    pub(crate) fn clock_s(&self) -> Option<i64> {
+        self.telemetry
+            .as_ref()
+            .and_then(|t| t.observed_at)
+            .map(|t| t.seconds)
+    }
+
     /// Bytes this vehicle holds on the heap (beyond `size_of::<Vehicle>()`).
     pub(crate) fn heap_bytes(&self) -> usize {
         self.profile.len() + self.zone.len() + self.depot.len()
@@ -249,6 +257,7 @@ pub(crate) fn apply_score(
     vehicle_id: &str,
     v: &mut Vehicle,
     s: Score,
+    // The vehicle's own clock ([`Vehicle::clock_s`]): no other vehicle's report moves it.
     now_s: Option<i64>,
     settings: &WatchSettings,
     alerts: &mut Vec<pb::Alert>,
