@@ -2,7 +2,7 @@
 no startmargin.v1 request decodes from, because each is broken at the wire level (a truncated
 varint, a length past the end, tag 0, wire types 6 and 7, a truncated fixed-width field, and
 valid requests cut short inside a field), plus random bytes kept only when they are broken the
-same way. Seeded, so running it again writes the same files.
+same way. Its random generator has a fixed key, so running it again writes the same files.
 
 Usage: python3 tests/corpus/generate.py
 """
@@ -11,7 +11,7 @@ import os
 import random
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-SEED = 20250114
+RNG_KEY = 20250114
 
 
 def varint(n):
@@ -87,7 +87,7 @@ def fleet_vehicle_item():
 
 
 def main():
-    rng = random.Random(SEED)
+    rng = random.Random(RNG_KEY)
     corpus = {
         "varint-unterminated": b"\x08" + b"\xff" * 10,
         "varint-too-long": b"\x08" + b"\xff" * 11 + b"\x01",

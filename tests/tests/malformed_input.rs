@@ -1,5 +1,5 @@
 //! Malformed messages through real gRPC: every payload of the corpus in `tests/corpus/*.bin`
-//! (written by the seeded `tests/corpus/generate.py`; each is broken at the protobuf wire level)
+//! (written by `tests/corpus/generate.py` with a fixed random key; each is broken at the protobuf wire level)
 //! sent to every RPC gets INVALID_ARGUMENT, never INTERNAL, and over-size messages get
 //! RESOURCE_EXHAUSTED. In the streams each bad item gets its own answer and the items after it
 //! are still assessed; invalid UTF-8 in a string field names the field's path; the calls are

@@ -611,7 +611,7 @@ mod tests {
 
     #[test]
     fn heuristic_bound_is_at_least_the_true_gap_on_random_depots() {
-        // Property, over 600 seeded depots of 1–12 candidates with 1–6 outlets and a circuit from
+        // Property, over 600 keyed random depots of 1–12 candidates with 1–6 outlets and a circuit from
         // 0 to 6 kW (mostly binding): the reported gap is ≥ the true gap (exhaustive optimum −
         // heuristic), the plan fits, and a zero gap is claimed only for an optimal plan.
         let mut zero_claims = 0;
