@@ -151,6 +151,7 @@ fn fixed_responses() -> Vec<api::AssessFleetResponse> {
             heater_w: 1500.0,
             no_start_without_pct: 71.5,
             no_start_with_pct: 2.0,
+            item_id: String::new(),
         }],
         expected_no_starts_without: 1.4,
         expected_no_starts_with: 0.3,
