@@ -71,7 +71,15 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
     svg.text(
         (x0, 58.0),
         "Margin if the vehicle left at each hour (from the forecast and its key-off readings); the vehicle's marker \
-         sits at its planned departure. Below 0 K the engine is not expected to fire.",
+         sits at its planned departure.",
+        12.0,
+        Anchor::Start,
+        "#555",
+    );
+    svg.text(
+        (x0, 74.0),
+        "Below 0 K the charge is too cold to fire; a vehicle above it can still fail on cranking, battery or fuel: \
+         the legend gives each vehicle's binding margin.",
         12.0,
         Anchor::Start,
         "#555",
