@@ -148,12 +148,14 @@ mod tests {
                 no_start_without_pct: 100.0,
                 no_start_with_pct: 38.2,
                 item_id: "PU-11".into(),
+                summary: String::new(),
             }],
             expected_no_starts_without: 1.83,
             expected_no_starts_with: 1.22,
             expected_no_starts_coldest_first: 1.5,
             exact: true,
             gap_bound: 0.0,
+            time_zone: String::new(),
         };
         let text = plan_text(&plan, 3.0);
         assert!(text.contains("1 free on a 2.6 kW circuit. Plug-in plan (optimal):"));

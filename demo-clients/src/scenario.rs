@@ -33,6 +33,8 @@ pub const DEPOT_ID: &str = "frostmere-yard";
 pub const YARD_OUTLETS: u32 = 1;
 /// Power the yard's outlet circuit may carry at once, kW.
 pub const YARD_CIRCUIT_KW: f64 = 2.6;
+/// IANA time zone of the yard (its offset is UTC−06:00 on the demo's winter night).
+pub const DEPOT_TIME_ZONE: &str = "America/Winnipeg";
 /// Local time offset from UTC, seconds (UTC−06:00).
 pub const UTC_OFFSET_S: i64 = -6 * 3600;
 /// The evening's local date (year, month, day); the night runs into the next morning.

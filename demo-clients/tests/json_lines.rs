@@ -152,12 +152,14 @@ fn fixed_responses() -> Vec<api::AssessFleetResponse> {
             no_start_without_pct: 71.5,
             no_start_with_pct: 2.0,
             item_id: String::new(),
+            summary: String::new(),
         }],
         expected_no_starts_without: 1.4,
         expected_no_starts_with: 0.3,
         expected_no_starts_coldest_first: 0.6,
         exact: true,
         gap_bound: 0.0,
+        time_zone: String::new(),
     };
     vec![
         report::vehicle_response(&s.vehicles[0], &Ok(assessment)),

@@ -67,6 +67,7 @@ impl FleetItem {
                     depot_id,
                     outlet_count,
                     circuit_limit_kw,
+                    time_zone: String::new(),
                 },
             )),
         })

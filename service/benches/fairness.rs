@@ -145,6 +145,7 @@ fn main() {
                 vehicle: Some(profile(format!("ridge-unit-{i:05}"), i)),
                 forecast_zone_id: "ridge".to_string(),
                 depot_id: "ridge-depot".to_string(),
+                time_zone: String::new(),
                 departure_time: Some(at_hour(10)),
             })))
             .await

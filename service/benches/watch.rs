@@ -82,6 +82,7 @@ fn watched(i: usize) -> pb::WatchedVehicle {
         forecast_zone_id: "ridge".to_string(),
         depot_id: "ridge-depot".to_string(),
         departure_time: Some(at_hour(10)),
+        time_zone: String::new(),
     }
 }
 

@@ -23,7 +23,7 @@ use std::pin::Pin;
 use std::sync::{Arc, Mutex, OnceLock};
 use std::time::Duration;
 
-use startmargin_model::plug_in_plan::{DepotLimits, PlugInCandidate};
+use startmargin_model::plug_in_plan::PlugInCandidate;
 use startmargin_proto::v1 as pb;
 use startmargin_proto::v1::assess_fleet_request::Item;
 use startmargin_proto::v1::assess_fleet_response::Outcome;
@@ -290,7 +290,7 @@ struct FleetStream {
     /// Zone forecasts; copy-on-write, so vehicles in flight keep the ones they were sent against.
     zones: Arc<ZoneForecasts>,
     /// Depot outlets by depot id, with the item id the plan answers.
-    depots: HashMap<String, (String, DepotLimits)>,
+    depots: HashMap<String, (String, convert::Depot)>,
     /// Plug-in candidates, filled by the compute threads.
     candidates: Candidates,
 }
@@ -412,7 +412,7 @@ impl FleetStream {
                 let mut candidates = candidates;
                 let mut plans: Vec<(String, pb::PlugInPlan)> = depots
                     .into_iter()
-                    .map(|(depot_id, (item_id, limits))| {
+                    .map(|(depot_id, (item_id, depot))| {
                         let mut found = candidates.remove(&depot_id).unwrap_or_default();
                         // In item order, not completion order: the same stream, the same plan.
                         found.sort_by(|a, b| a.0.cmp(&b.0));
@@ -421,7 +421,7 @@ impl FleetStream {
                         let index: Vec<String> = (0..found.len()).map(|i| i.to_string()).collect();
                         let chosen: Vec<PlugInCandidate> =
                             found.iter().map(|(_, _, c)| *c).collect();
-                        let mut plan = convert::plan_to_pb(&depot_id, &limits, &index, &chosen);
+                        let mut plan = convert::plan_to_pb(&depot, &index, &chosen);
                         for p in &mut plan.plug_ins {
                             if let Some((item, vehicle, _)) = p
                                 .vehicle_id
@@ -489,14 +489,25 @@ impl FleetStream {
             }
             Some(Item::DepotOutlets(depot)) => {
                 match convert::depot_from_pb(&depot, FLEET_DEPOT_PATH) {
-                    Ok((depot_id, limits)) => {
-                        debug!(depot_id, outlets = limits.outlets, "depot outlets");
-                        self.depots.insert(depot_id, (item_id, limits));
+                    Ok(depot) => {
+                        debug!(
+                            depot.depot_id,
+                            outlets = depot.limits.outlets,
+                            "depot outlets"
+                        );
+                        self.depots.insert(depot.depot_id.clone(), (item_id, depot));
                     }
                     Err(e) => self.send_error(permit, item_id, e),
                 }
             }
-            Some(Item::Vehicle(night)) => {
+            Some(Item::Vehicle(mut night)) => {
+                // A vehicle without its own zone takes its depot's, when the depot came first.
+                if night.time_zone.is_empty()
+                    && let Some((_, depot)) = self.depots.get(&night.depot_id)
+                    && !depot.zone.assumed
+                {
+                    night.time_zone = depot.zone.name.clone();
+                }
                 let vehicle_id = night
                     .vehicle
                     .as_ref()

@@ -99,7 +99,8 @@ pub struct Config {
     pub watch_max_updates_per_s: f64,
     /// An act-by alert goes out at the latest this many minutes before the action's deadline.
     pub watch_alert_lead_min: f64,
-    /// UTC hour (0–23) of the departure's night from which act-by alerts may go out early;
+    /// Local hour (0–23) of the departure's night, in each watched vehicle's time zone
+    /// (`WatchedVehicle.time_zone`, UTC when absent), from which act-by alerts may go out early;
     /// before it only the lead sends them. Unset = the lead alone.
     pub watch_quiet_until_hour: Option<u32>,
     /// A raised outlook alert clears only when the no-start probability falls this many percent
@@ -379,7 +380,7 @@ impl Config {
             && hour > 23
         {
             problems.push(format!(
-                "watch_quiet_until_hour = {hour} must be a UTC hour 0 to 23"
+                "watch_quiet_until_hour = {hour} must be a local hour 0 to 23"
             ));
         }
         let hysteresis = self.watch_hysteresis_pct;

@@ -29,6 +29,7 @@ use startmargin_model::soak::{FilterMount, ForecastHour};
 use startmargin_proto::v1 as pb;
 
 use crate::error::{ApiError, FieldViolation};
+use crate::local_time::Zone;
 
 pub mod describe;
 mod grades;
@@ -1018,10 +1019,25 @@ pub fn decide(
             ));
         }
     };
-    let (vehicle_id, domain) = night_from_pb(night, path, zones)?;
+    // Every bad field at once: the zone's violation joins the night's.
+    let (vehicle_id, domain, zone) = match (
+        night_from_pb(night, path, zones),
+        Zone::from_name(&night.time_zone),
+    ) {
+        (Ok((id, domain)), Ok(zone)) => (id, domain, zone),
+        (Err(ApiError::InvalidArgument(mut found)), Err(why)) => {
+            found.push(FieldViolation {
+                field: format!("{path}.time_zone"),
+                description: why,
+            });
+            return Err(ApiError::InvalidArgument(found));
+        }
+        (Err(e), _) => return Err(e),
+        (Ok(_), Err(why)) => return Err(ApiError::field(format!("{path}.time_zone"), why)),
+    };
     // Model time for the metrics: the whole decision (assessment, probability, actions, plan).
     let started = std::time::Instant::now();
-    let model_err = |e| ApiError::from_model(path, e);
+    let model_err = |e| ApiError::from_model_in(path, e, &zone);
     let method = match night.options.as_ref().map(|o| o.probability_method()) {
         Some(pb::ProbabilityMethod::Sampling) => Method::Sampling {
             samples: SAMPLING_SAMPLES,
@@ -1060,7 +1076,8 @@ pub fn decide(
     message.outlook = outlook_to_pb(d.outlook) as i32;
     message.no_start_standard_error_pct = p.standard_error * 100.0;
     message.depot_id = night.depot_id.clone();
-    message.actions = d.actions.iter().map(action_to_pb).collect();
+    message.actions = d.actions.iter().map(|a| action_to_pb(a, &zone)).collect();
+    message.time_zone = zone.name.clone();
     message.binding_mode = failure_mode_to_pb(p.binding) as i32;
     message.modes = FailureMode::ALL
         .iter()
@@ -1167,10 +1184,16 @@ fn action_kind_to_pb(k: ActionKind) -> pb::ActionKind {
     }
 }
 
-fn action_to_pb(a: &Action) -> pb::Action {
+/// The model's action as the API message; a timed action's summary ends with its deadline in
+/// the depot's local time (the model gives the instant, the service writes it).
+fn action_to_pb(a: &Action, zone: &Zone) -> pb::Action {
+    let summary = match a.act_by_s {
+        Some(t) => format!("{} Act by {}.", a.summary, zone.rfc3339(t)),
+        None => a.summary.clone(),
+    };
     pb::Action {
         kind: action_kind_to_pb(a.kind) as i32,
-        summary: a.summary.clone(),
+        summary,
         expected_margin_gain_k: a.expected_margin_gain_k,
         act_by: a.act_by_s.map(timestamp),
         energy_kwh: a.energy_j / 3.6e6,
@@ -1180,10 +1203,28 @@ fn action_to_pb(a: &Action) -> pb::Action {
     }
 }
 
+/// A depot's outlets as the model's limits, with the depot's time zone.
+#[derive(Debug, Clone)]
+pub struct Depot {
+    /// Depot id.
+    pub depot_id: String,
+    /// Outlets and circuit limit.
+    pub limits: DepotLimits,
+    /// Its time zone (UTC when it named none).
+    pub zone: Zone,
+}
+
 /// Validates and converts a depot's outlets (`path` = field path prefix).
-pub fn depot_from_pb(d: &pb::DepotOutlets, path: &str) -> Result<(String, DepotLimits), ApiError> {
+pub fn depot_from_pb(d: &pb::DepotOutlets, path: &str) -> Result<Depot, ApiError> {
     let mut v = Violations::default();
     v.id(&format!("{path}.depot_id"), &d.depot_id, true);
+    let zone = match Zone::from_name(&d.time_zone) {
+        Ok(zone) => zone,
+        Err(why) => {
+            v.add(format!("{path}.time_zone"), why);
+            Zone::default()
+        }
+    };
     if d.outlet_count > 100_000 {
         v.add(format!("{path}.outlet_count"), "at most 100000 outlets");
     }
@@ -1195,22 +1236,23 @@ pub fn depot_from_pb(d: &pb::DepotOutlets, path: &str) -> Result<(String, DepotL
         "kW",
     );
     v.finish(())?;
-    Ok((
-        d.depot_id.clone(),
-        DepotLimits {
+    Ok(Depot {
+        depot_id: d.depot_id.clone(),
+        limits: DepotLimits {
             outlets: d.outlet_count,
             circuit_limit_w: limit.map(|k| k * 1000.0),
         },
-    ))
+        zone,
+    })
 }
 
 /// The depot's plan as the API message. `vehicles[i]` and `candidates[i]` belong together.
 pub fn plan_to_pb(
-    depot_id: &str,
-    limits: &DepotLimits,
+    depot: &Depot,
     vehicles: &[String],
     candidates: &[PlugInCandidate],
 ) -> pb::PlugInPlan {
+    let (depot_id, limits, zone) = (&depot.depot_id, &depot.limits, &depot.zone);
     let plan = plug_in_plan::plan(candidates, limits);
     let coldest = plug_in_plan::coldest_first(candidates, limits);
     pb::PlugInPlan {
@@ -1229,6 +1271,12 @@ pub fn plan_to_pb(
                 no_start_with_pct: candidates[i].p_with * 100.0,
                 // Set by the fleet stream, which knows each vehicle's item.
                 item_id: String::new(),
+                summary: format!(
+                    "Plug in by {}: no-start risk {:.1} % without, {:.1} % with",
+                    zone.rfc3339(candidates[i].plug_in_s),
+                    candidates[i].p_without * 100.0,
+                    candidates[i].p_with * 100.0
+                ),
             })
             .collect(),
         expected_no_starts_without: plan.expected_no_starts_without,
@@ -1236,6 +1284,7 @@ pub fn plan_to_pb(
         expected_no_starts_coldest_first: coldest.expected_no_starts_with,
         exact: plan.method == PlanMethod::Exact,
         gap_bound: plan.gap_bound,
+        time_zone: zone.name.clone(),
     }
 }
 
@@ -1396,6 +1445,7 @@ pub fn assessment_to_pb(
         binding_mode: pb::FailureMode::Unspecified as i32,
         modes: Vec::new(),
         headline: String::new(),
+        time_zone: String::new(),
     }
 }
 

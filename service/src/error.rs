@@ -5,9 +5,20 @@
 //! `RESOURCE_EXHAUSTED` under overload, `UNAVAILABLE` while draining, `INTERNAL` for defects.
 //! Never `UNKNOWN`.
 
+use std::collections::HashMap;
+
 use startmargin_model::ModelError;
 use tonic::Code;
 use tonic_types::{ErrorDetails, StatusExt};
+
+use crate::local_time::{Zone, utc_rfc3339};
+
+/// `google.rpc.ErrorInfo.domain` of this API's errors.
+pub const ERROR_DOMAIN: &str = "startmargin.v1";
+/// `ErrorInfo.reason` (and `PreconditionFailure` type) when the forecast falls short. Its
+/// metadata: `covered_until` and `requested` (RFC 3339, UTC), `covered_until_unix_s` and
+/// `requested_unix_s` (seconds since 1970), `subject` (the forecast's field path).
+pub const FORECAST_SHORT_REASON: &str = "FORECAST_TOO_SHORT";
 
 /// One bad field: its path in the request (e.g. `night.vehicle.battery.capacity_cca`) and why.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -27,6 +38,20 @@ pub enum ApiError {
     /// The request is valid but cannot be answered as it stands (e.g. forecast too short).
     #[error("{0}")]
     FailedPrecondition(String),
+    /// The forecast does not reach the time asked for (`FAILED_PRECONDITION`). The message gives
+    /// both times in the depot's local time (RFC 3339 with offset); the status details carry
+    /// them as machine values (`google.rpc.ErrorInfo` and `google.rpc.PreconditionFailure`).
+    #[error("{message}")]
+    ForecastShort {
+        /// The sentence for a person.
+        message: String,
+        /// The field path of the forecast that falls short.
+        subject: String,
+        /// Last instant the forecast covers, UTC seconds.
+        covered_until_s: f64,
+        /// Instant asked for, UTC seconds.
+        requested_s: f64,
+    },
     /// Too much work in flight; try again later.
     #[error("{0}")]
     ResourceExhausted(String),
@@ -54,8 +79,14 @@ impl ApiError {
         }])
     }
 
-    /// Maps a model error found while assessing `path` (the request's vehicle night).
+    /// Maps a model error found while assessing `path` (the request's vehicle night), with times
+    /// for people in UTC.
     pub fn from_model(path: &str, e: ModelError) -> Self {
+        Self::from_model_in(path, e, &Zone::default())
+    }
+
+    /// Maps a model error found while assessing `path`, writing times in `zone`.
+    pub fn from_model_in(path: &str, e: ModelError, zone: &Zone) -> Self {
         match e {
             // Named at the request field the quantity comes from, never at a model-internal name.
             ModelError::OutOfRange { quantity, .. } => {
@@ -65,9 +96,19 @@ impl ApiError {
                 }
             }
             ModelError::Inconsistent(_) => Self::field(path.to_string(), e.to_string()),
-            ModelError::ForecastTooShort { .. } => Self::FailedPrecondition(format!(
-                "{path}: the forecast does not cover the time asked for ({e})"
-            )),
+            ModelError::ForecastTooShort {
+                covered_until_s,
+                requested_s,
+            } => Self::ForecastShort {
+                message: format!(
+                    "{path}: the forecast covers up to {} but {} was requested",
+                    zone.rfc3339(covered_until_s),
+                    zone.rfc3339(requested_s)
+                ),
+                subject: format!("{path}.forecast"),
+                covered_until_s,
+                requested_s,
+            },
             ModelError::NoConvergence(_) => Self::Internal(e.to_string()),
         }
     }
@@ -76,7 +117,7 @@ impl ApiError {
     pub fn code(&self) -> Code {
         match self {
             Self::InvalidArgument(_) => Code::InvalidArgument,
-            Self::FailedPrecondition(_) => Code::FailedPrecondition,
+            Self::FailedPrecondition(_) | Self::ForecastShort { .. } => Code::FailedPrecondition,
             Self::ResourceExhausted(_) => Code::ResourceExhausted,
             Self::Unavailable(_) => Code::Unavailable,
             Self::Internal(_) => Code::Internal,
@@ -94,6 +135,31 @@ impl From<ApiError> for tonic::Status {
                 for v in &violations {
                     details.add_bad_request_violation(v.field.clone(), v.description.clone());
                 }
+                tonic::Status::with_error_details(code, message, details)
+            }
+            ApiError::ForecastShort {
+                subject,
+                covered_until_s,
+                requested_s,
+                ..
+            } => {
+                let mut details = ErrorDetails::new();
+                let metadata: HashMap<String, String> = [
+                    ("covered_until", utc_rfc3339(covered_until_s)),
+                    ("requested", utc_rfc3339(requested_s)),
+                    ("covered_until_unix_s", format!("{covered_until_s}")),
+                    ("requested_unix_s", format!("{requested_s}")),
+                    ("subject", subject.clone()),
+                ]
+                .into_iter()
+                .map(|(k, v)| (k.to_string(), v))
+                .collect();
+                details.set_error_info(FORECAST_SHORT_REASON, ERROR_DOMAIN, metadata);
+                details.add_precondition_failure_violation(
+                    FORECAST_SHORT_REASON,
+                    subject,
+                    "the forecast must reach the departure (and every time asked about)",
+                );
                 tonic::Status::with_error_details(code, message, details)
             }
             _ => tonic::Status::new(code, message),
@@ -156,5 +222,38 @@ mod tests {
             },
         );
         assert_eq!(e.code(), Code::FailedPrecondition);
+    }
+
+    #[test]
+    fn forecast_too_short_gives_local_times_and_machine_values() {
+        let zone = Zone::from_name("America/Denver").unwrap();
+        // 2027-01-15T04:00:00Z and 2027-01-15T13:00:00Z (MST, UTC-7 in January).
+        let e = ApiError::from_model_in(
+            "night",
+            ModelError::ForecastTooShort {
+                covered_until_s: 1_799_985_600.0,
+                requested_s: 1_800_018_000.0,
+            },
+            &zone,
+        );
+        assert_eq!(
+            e.to_string(),
+            "night: the forecast covers up to 2027-01-14T21:00:00-07:00 but 2027-01-15T06:00:00-07:00 was requested"
+        );
+        let s: tonic::Status = e.clone().into();
+        assert_eq!(s.code(), Code::FailedPrecondition);
+        let d = s.get_error_details();
+        let info = d.error_info().expect("ErrorInfo");
+        assert_eq!(info.reason, FORECAST_SHORT_REASON);
+        assert_eq!(info.domain, ERROR_DOMAIN);
+        assert_eq!(info.metadata["covered_until"], "2027-01-15T04:00:00Z");
+        assert_eq!(info.metadata["requested"], "2027-01-15T13:00:00Z");
+        assert_eq!(info.metadata["requested_unix_s"], "1800018000");
+        let pf = d.precondition_failure().expect("PreconditionFailure");
+        assert_eq!(pf.violations[0].subject, "night.forecast");
+        // In a fleet stream the same details travel inside the item's google.rpc.Status.
+        let r = to_rpc_status(e);
+        assert_eq!(r.code, Code::FailedPrecondition as i32);
+        assert_eq!(r.details.len(), 2);
     }
 }

@@ -8,6 +8,7 @@
 //! - [`api`]: the `startmargin.v1.StartMarginService` implementation (transport only).
 //! - [`convert`]: validation and conversion between the API's messages and the model.
 //! - [`error`]: the API errors and their one mapping to gRPC status codes.
+//! - [`local_time`]: the depot time zone, and times for people in it with their offset.
 //!
 //! The service holds no physics: it validates, converts, runs the model off the async runtime
 //! and transports the answer.
@@ -19,6 +20,7 @@ pub mod codec;
 pub mod config;
 pub mod convert;
 pub mod error;
+pub mod local_time;
 pub mod metrics;
 pub mod metrics_http;
 pub mod server;

@@ -171,6 +171,62 @@ async fn forecast_not_covering_the_departure_is_failed_precondition() -> anyhow:
 }
 
 #[tokio::test]
+async fn forecast_not_covering_gives_local_times_and_machine_details() -> anyhow::Result<()> {
+    use tonic_types::StatusExt;
+    let server = TestServer::start().await?;
+    let mut night = sample_night("v");
+    // 2025-01-15T14:00:00Z, 07:00 MST; the forecast covers 12 h from 2025-01-14T18:00:00Z.
+    night.departure_time = Some(at_hour(20.0));
+    night.time_zone = "America/Denver".to_string();
+    let status = refused(&server, Some(night)).await;
+    assert_eq!(status.code(), Code::FailedPrecondition, "{status:?}");
+    // The last of the 12 hourly points plus one step: 2025-01-15T06:00:00Z, 23:00 MST the evening
+    // before.
+    assert_eq!(
+        status.message(),
+        "night: the forecast covers up to 2025-01-14T23:00:00-07:00 but 2025-01-15T07:00:00-07:00 was requested"
+    );
+    let details = status.get_error_details();
+    let info = details.error_info().expect("ErrorInfo details");
+    assert_eq!(info.reason, "FORECAST_TOO_SHORT");
+    assert_eq!(info.metadata["requested"], "2025-01-15T14:00:00Z");
+    assert_eq!(info.metadata["requested_unix_s"], "1736949600");
+    assert_eq!(info.metadata["covered_until"], "2025-01-15T06:00:00Z");
+    let pf = details.precondition_failure().expect("PreconditionFailure");
+    assert_eq!(pf.violations[0].subject, "night.forecast");
+    server.shutdown().await
+}
+
+#[tokio::test]
+async fn unknown_time_zone_is_refused_at_its_field() -> anyhow::Result<()> {
+    let server = TestServer::start().await?;
+    for bad in [
+        "Mountain Time",
+        "America/Nowhere",
+        "-07:00",
+        &"x".repeat(65),
+    ] {
+        let mut night = sample_night("v");
+        night.time_zone = bad.to_string();
+        assert_invalid(&server, night, "night.time_zone").await;
+    }
+    // With another bad field, both are named at once.
+    let mut night = sample_night("v");
+    night.time_zone = "Nowhere/Else".to_string();
+    night.forecast.as_mut().expect("forecast").points[0].air_c = f64::NAN;
+    let fields = violated_fields(&refused(&server, Some(night)).await);
+    assert!(
+        fields.contains(&"night.time_zone".to_string()),
+        "{fields:?}"
+    );
+    assert!(
+        fields.contains(&"night.forecast.points[0].air_c".to_string()),
+        "{fields:?}"
+    );
+    server.shutdown().await
+}
+
+#[tokio::test]
 async fn unknown_archetype() -> anyhow::Result<()> {
     let server = TestServer::start().await?;
     let mut night = sample_night("v");

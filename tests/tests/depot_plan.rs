@@ -21,6 +21,7 @@ fn outlets_item(item_id: &str, depot_id: &str, outlet_count: u32) -> pb::AssessF
                 depot_id: depot_id.to_string(),
                 outlet_count,
                 circuit_limit_kw: None,
+                time_zone: String::new(),
             },
         )),
     }

@@ -41,6 +41,7 @@ async fn duplicate_and_missing_item_ids_are_refused_per_item() -> anyhow::Result
                     depot_id: "north".to_string(),
                     outlet_count: 5,
                     circuit_limit_kw: None,
+                    time_zone: String::new(),
                 },
             )),
         },

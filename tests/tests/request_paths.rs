@@ -245,6 +245,7 @@ fn watched(vehicle: pb::VehicleProfile) -> Update {
         forecast_zone_id: "yard".to_string(),
         depot_id: "north".to_string(),
         departure_time: Some(at_hour(10.0)),
+        time_zone: String::new(),
     })
 }
 

@@ -97,6 +97,7 @@ fn heated(seq: u64, vehicle_id: &str) -> pb::WatchFleetRequest {
             forecast_zone_id: "hill".to_string(),
             depot_id: "north-yard".to_string(),
             departure_time: Some(at_hour(DEPARTURE_H)),
+            time_zone: String::new(),
         })),
         sequence: seq,
     }

@@ -160,6 +160,7 @@ async fn main() -> anyhow::Result<()> {
             forecast_zone_id: ZONE_ID.to_string(),
             depot_id: DEPOT_ID.to_string(),
             departure_time: night.departure_time,
+            time_zone: scenario::DEPOT_TIME_ZONE.to_string(),
         })
         .await?;
         tx.telemetry(api::TelemetryUpdate {

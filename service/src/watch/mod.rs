@@ -407,6 +407,9 @@ impl WatchStream {
         if let Err(e) = check_time(w.departure_time.as_ref()) {
             violation("vehicle.departure_time", e.to_string());
         }
+        if let Err(why) = crate::local_time::Zone::from_name(&w.time_zone) {
+            violation("vehicle.time_zone", why);
+        }
         // The whole profile now, at this update's paths: later updates must not carry its faults.
         if let Some(profile) = w.vehicle.as_ref()
             && let Err(ApiError::InvalidArgument(found)) =
@@ -489,6 +492,7 @@ impl WatchStream {
         if let Some(held) = v.telemetry.as_ref().and_then(|h| h.observed_at)
             && (observed.seconds, observed.nanos) <= (held.seconds, held.nanos)
         {
+            let zone = crate::local_time::Zone::from_name(&v.time_zone).unwrap_or_default();
             return Err((
                 id,
                 ApiError::field(
@@ -496,8 +500,8 @@ impl WatchStream {
                     format!(
                         "{} is not newer than the report held for this vehicle ({}): \
                          send a vehicle's reports in time order",
-                        utc(observed.seconds),
-                        utc(held.seconds)
+                        zone.rfc3339(observed.seconds as f64),
+                        zone.rfc3339(held.seconds as f64)
                     ),
                 ),
             ));
@@ -781,6 +785,20 @@ fn request_error(e: ApiError, source: Source) -> ApiError {
                 .and_then(|r| r.strip_prefix(": "))
                 .map_or(m.clone(), |r| format!("{}: {r}", source.field())),
         ),
+        ApiError::ForecastShort {
+            message,
+            subject,
+            covered_until_s,
+            requested_s,
+        } => ApiError::ForecastShort {
+            message: message
+                .strip_prefix(NIGHT)
+                .and_then(|r| r.strip_prefix(": "))
+                .map_or(message.clone(), |r| format!("{}: {r}", source.field())),
+            subject: request_path(&subject, source),
+            covered_until_s,
+            requested_s,
+        },
         other => other,
     }
 }
@@ -805,28 +823,6 @@ fn refused(seq: u64, vehicle_id: &str, e: ApiError) -> Event {
         vehicle_id: vehicle_id.to_string(),
         error: Some(to_rpc_status(e)),
     })
-}
-
-/// UTC seconds as `YYYY-MM-DDTHH:MM:SSZ`, for messages.
-fn utc(at_s: i64) -> String {
-    // Days since 1970 to the proleptic Gregorian date, by 400-year eras.
-    let days = at_s.div_euclid(86_400);
-    let secs = at_s.rem_euclid(86_400);
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let d = doy - (153 * mp + 2) / 5 + 1;
-    let m = if mp < 10 { mp + 3 } else { mp - 9 };
-    let y = yoe + era * 400 + i64::from(m <= 2);
-    format!(
-        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
-        secs / 3600,
-        (secs % 3600) / 60,
-        secs % 60
-    )
 }
 
 /// Checks a required UTC time (1970 to 2200); returns its seconds.
@@ -896,12 +892,5 @@ mod tests {
             e,
             ApiError::FailedPrecondition("zone_forecast: the forecast does not cover it".into())
         );
-    }
-
-    #[test]
-    fn utc_times_read_as_calendar_dates() {
-        assert_eq!(utc(0), "1970-01-01T00:00:00Z");
-        assert_eq!(utc(1_736_877_600), "2025-01-14T18:00:00Z");
-        assert_eq!(utc(951_782_400), "2000-02-29T00:00:00Z");
     }
 }

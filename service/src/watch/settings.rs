@@ -8,6 +8,7 @@ use startmargin_proto::v1 as pb;
 
 use crate::config::Config;
 use crate::convert::Policy;
+use crate::local_time::Zone;
 
 /// The `[streams]` section of the configuration: how streaming calls share the server.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
@@ -78,7 +79,8 @@ pub struct WatchSettings {
     pub max_updates_per_s: f64,
     /// An act-by alert goes out at the latest this long before the action's deadline, seconds.
     pub alert_lead_s: i64,
-    /// Act-by alerts wait for this UTC hour of the departure's night unless the lead forces them.
+    /// Act-by alerts wait for this local hour (of each vehicle's time zone) of the departure's
+    /// night unless the lead forces them.
     pub quiet_until_hour: Option<u32>,
     /// A raised outlook alert clears only below its level's threshold minus this, percent.
     pub hysteresis_pct: f64,
@@ -120,20 +122,17 @@ impl WatchSettings {
     }
 
     /// When an act-by alert for `act_by_s` becomes due: at the latest `alert_lead_s` before the
-    /// deadline, earlier at the quiet hour of the departure's night when one is set.
-    pub fn act_due_s(&self, act_by_s: i64, departure_s: i64) -> i64 {
+    /// deadline, earlier at the quiet hour of the departure's night when one is set. The quiet
+    /// hour is a local hour of `zone`: the last `hour`:00 local at or before the departure, by
+    /// the zone's rules (a night that changes the clocks is 23 or 25 hours long).
+    pub fn act_due_s(&self, act_by_s: i64, departure_s: i64, zone: &Zone) -> i64 {
         let lead_due = act_by_s - self.alert_lead_s;
-        match self.quiet_until_hour {
+        match self
+            .quiet_until_hour
+            .and_then(|hour| zone.last_local_hour_at_or_before(departure_s, hour))
+        {
             None => lead_due,
-            Some(hour) => {
-                // The last time at `hour`:00 UTC at or before the departure.
-                let day = departure_s - departure_s.rem_euclid(86_400);
-                let mut quiet_end = day + i64::from(hour) * 3600;
-                if quiet_end > departure_s {
-                    quiet_end -= 86_400;
-                }
-                lead_due.min(quiet_end.max(lead_due - 86_400))
-            }
+            Some(quiet_end) => lead_due.min(quiet_end.max(lead_due - 86_400)),
         }
     }
 }
@@ -147,12 +146,48 @@ mod tests {
         let mut s = WatchSettings::from_config(&Config::default());
         s.alert_lead_s = 3600;
         s.quiet_until_hour = None;
+        let utc = Zone::default();
         let dep = 1_800_000_000 - 1_800_000_000 % 86_400 + 6 * 3600; // 06:00 UTC
         let act_by = dep - 3 * 3600; // 03:00
-        assert_eq!(s.act_due_s(act_by, dep), act_by - 3600);
+        assert_eq!(s.act_due_s(act_by, dep, &utc), act_by - 3600);
         s.quiet_until_hour = Some(1);
-        assert_eq!(s.act_due_s(act_by, dep), dep - 5 * 3600, "at 01:00");
+        assert_eq!(s.act_due_s(act_by, dep, &utc), dep - 5 * 3600, "at 01:00");
         s.quiet_until_hour = Some(4);
-        assert_eq!(s.act_due_s(act_by, dep), act_by - 3600, "the lead wins");
+        assert_eq!(
+            s.act_due_s(act_by, dep, &utc),
+            act_by - 3600,
+            "the lead wins"
+        );
+    }
+
+    /// The quiet hour is local: on the America/Denver fall-back night (2026-11-01, clocks back
+    /// from 02:00 MDT to 01:00 MST at 08:00 UTC; US federal rule, common practice (no source))
+    /// and on the spring-forward night (2027-03-14, 02:00 MST to 03:00 MDT at 09:00 UTC).
+    #[test]
+    fn the_quiet_hour_is_a_local_hour_across_clock_changes() {
+        let mut s = WatchSettings::from_config(&Config::default());
+        s.alert_lead_s = 3600;
+        let denver = Zone::from_name("America/Denver").unwrap();
+        // Fall back: departure 06:00 MST = 13:00 UTC; deadline 05:00 MST = 12:00 UTC.
+        let fall_back_s = 1_793_520_000;
+        let dep = fall_back_s + 5 * 3600;
+        let act_by = dep - 3600;
+        s.quiet_until_hour = Some(3);
+        // 03:00 MST is 10:00 UTC (a fixed UTC-6 reading would say 09:00, a UTC hour 03:00).
+        assert_eq!(s.act_due_s(act_by, dep, &denver), fall_back_s + 2 * 3600);
+        s.quiet_until_hour = Some(1);
+        // 01:00 happens twice; the first (01:00 MDT, 07:00 UTC) ends the quiet.
+        assert_eq!(s.act_due_s(act_by, dep, &denver), fall_back_s - 3600);
+        // Spring forward: departure 06:00 MDT = 12:00 UTC; 04:00 MDT = 10:00 UTC.
+        let spring_s = 1_805_014_800;
+        let dep = spring_s + 3 * 3600;
+        let act_by = dep - 3600;
+        s.quiet_until_hour = Some(4);
+        assert_eq!(s.act_due_s(act_by, dep, &denver), spring_s + 3600);
+        // 02:00 does not exist that night: the quiet ends when the clocks jump, 09:00 UTC.
+        s.quiet_until_hour = Some(2);
+        assert_eq!(s.act_due_s(act_by, dep, &denver), spring_s);
+        // The same hour in UTC would be a different instant altogether.
+        assert_ne!(s.act_due_s(act_by, dep, &Zone::default()), spring_s);
     }
 }

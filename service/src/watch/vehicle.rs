@@ -10,6 +10,7 @@ use startmargin_model::soak::fit_cooldown_time_constant_s;
 use startmargin_proto::v1 as pb;
 
 use super::settings::WatchSettings;
+use crate::local_time::Zone;
 
 /// Coolant readings kept per vehicle for the cool-down fit.
 pub const RING_LEN: usize = 12;
@@ -93,6 +94,8 @@ pub(crate) struct Vehicle {
     pub(crate) profile: Box<[u8]>,
     pub(crate) zone: Box<str>,
     pub(crate) depot: Box<str>,
+    /// IANA time-zone name of the depot (checked at the upsert; empty: UTC).
+    pub(crate) time_zone: Box<str>,
     pub(crate) departure: Timestamp,
     pub(crate) telemetry: Option<pb::VehicleTelemetry>,
     pub(crate) ring: Ring,
@@ -121,6 +124,7 @@ impl Vehicle {
             profile: profile.encode_to_vec().into_boxed_slice(),
             zone: w.forecast_zone_id.as_str().into(),
             depot: w.depot_id.as_str().into(),
+            time_zone: w.time_zone.as_str().into(),
             departure: w.departure_time.unwrap_or_default(),
             telemetry: None,
             ring: Ring::default(),
@@ -144,7 +148,7 @@ impl Vehicle {
 
     /// Bytes this vehicle holds on the heap (beyond `size_of::<Vehicle>()`).
     pub(crate) fn heap_bytes(&self) -> usize {
-        self.profile.len() + self.zone.len() + self.depot.len()
+        self.profile.len() + self.zone.len() + self.depot.len() + self.time_zone.len()
     }
 
     /// Takes a telemetry report: buffers coolant readings since key-off, refits the cool-down
@@ -216,6 +220,7 @@ impl Vehicle {
             block_heater_plan,
             options: None,
             depot_id: self.depot.to_string(),
+            time_zone: self.time_zone.to_string(),
         })
     }
 }
@@ -263,6 +268,8 @@ pub(crate) fn apply_score(
     alerts: &mut Vec<pb::Alert>,
 ) -> pb::OutlookChange {
     let at_risk = pb::StartOutlook::AtRisk as i32;
+    // The name was checked when the vehicle came in; UTC only if it was absent.
+    let zone = Zone::from_name(&v.time_zone).unwrap_or_default();
     let base = |v: &Vehicle, kind: pb::AlertKind, held: Held, state: pb::AlertState| pb::Alert {
         alert_id: alert_id_hex(held.id),
         vehicle_id: vehicle_id.to_string(),
@@ -309,9 +316,10 @@ pub(crate) fn apply_score(
         };
         let mut a = base(v, pb::AlertKind::OutlookRise, held, pb::AlertState::Raised);
         a.reason = format!(
-            "{}: {:.1} % chance of no start at departure. {}",
+            "{}: {:.1} % chance of no start at departure {}. {}",
             outlook_name(s.outlook),
             s.no_start_pct,
+            zone.rfc3339(v.departure.seconds as f64),
             s.explanation
         );
         a.act_by = earliest_act_by(&s.actions);
@@ -324,7 +332,7 @@ pub(crate) fn apply_score(
     // while the earliest deadline is due at this level, so it follows from the current state
     // alone (a replay on a new stream raises the same one).
     let act_by = earliest_act_by(&s.actions);
-    v.act_due_s = act_by.map(|t| settings.act_due_s(t.seconds, v.departure.seconds));
+    v.act_due_s = act_by.map(|t| settings.act_due_s(t.seconds, v.departure.seconds, &zone));
     let due_now = matches!((v.act_due_s, now_s), (Some(due), Some(now)) if now >= due);
     if let Some(held) = v.act_alert
         && (!due_now || held.outlook != s.outlook)
@@ -359,7 +367,7 @@ pub(crate) fn apply_score(
             .iter()
             .find(|x| x.act_by == Some(act_by))
             .map_or("", |x| x.summary.as_str());
-        a.reason = format!("act by {} UTC: {first}", hh_mm(act_by.seconds));
+        a.reason = format!("act by {}: {first}", zone.rfc3339(act_by.seconds as f64));
         a.act_by = Some(act_by);
         a.actions = s.actions.clone();
         alerts.push(a);
@@ -419,11 +427,6 @@ fn earliest_act_by(actions: &[pb::Action]) -> Option<Timestamp> {
         .min_by_key(|t| (t.seconds, t.nanos))
 }
 
-fn hh_mm(at_s: i64) -> String {
-    let day_s = at_s.rem_euclid(86_400);
-    format!("{:02}:{:02}", day_s / 3600, (day_s % 3600) / 60)
-}
-
 fn outlook_name(o: i32) -> &'static str {
     match pb::StartOutlook::try_from(o) {
         Ok(pb::StartOutlook::Assured) => "ASSURED",
@@ -449,6 +452,73 @@ mod tests {
         assert_ne!(a, alert_id("v1", &dep, pb::AlertKind::OutlookRise, 4));
         assert_ne!(a, alert_id("v1", &dep, pb::AlertKind::ActByNear, 3));
         assert_ne!(a, alert_id("v2", &dep, pb::AlertKind::OutlookRise, 3));
+    }
+
+    /// An act-by alert of a vehicle at an America/Denver depot on the nights the clocks change
+    /// (US federal rule, common practice (no source)): 2026-11-01, back from 02:00 MDT to 01:00
+    /// MST at 08:00 UTC; 2027-03-14, forward from 02:00 MST to 03:00 MDT at 09:00 UTC.
+    #[test]
+    fn act_by_text_and_quiet_hour_are_local_across_clock_changes() {
+        use crate::config::Config;
+        let settings = {
+            let mut s = WatchSettings::from_config(&Config::default());
+            s.alert_lead_s = 30 * 60;
+            s
+        };
+        let raise = |departure_s: i64, act_by_s: i64, quiet_hour: u32, now_s: i64| {
+            let mut settings = settings;
+            settings.quiet_until_hour = Some(quiet_hour);
+            let w = pb::WatchedVehicle {
+                vehicle: None,
+                forecast_zone_id: "hill".into(),
+                depot_id: "north".into(),
+                departure_time: Some(Timestamp {
+                    seconds: departure_s,
+                    nanos: 0,
+                }),
+                time_zone: "America/Denver".into(),
+            };
+            let mut v = Vehicle::new(&w, &pb::VehicleProfile::default());
+            let score = Score {
+                outlook: pb::StartOutlook::AtRisk as i32,
+                no_start_pct: 30.0,
+                margin_k: -5.0,
+                explanation: "cold".into(),
+                actions: vec![pb::Action {
+                    summary: "Plug in the block heater.".into(),
+                    act_by: Some(Timestamp {
+                        seconds: act_by_s,
+                        nanos: 0,
+                    }),
+                    ..Default::default()
+                }],
+            };
+            let mut alerts = Vec::new();
+            apply_score("u1", &mut v, score, Some(now_s), &settings, &mut alerts);
+            alerts
+                .into_iter()
+                .filter(|a| a.kind == pb::AlertKind::ActByNear as i32)
+                .map(|a| a.reason)
+                .collect::<Vec<_>>()
+        };
+        // Fall back: departure 06:00 MST (13:00 UTC), deadline 01:30 MST, the second 01:30 of the
+        // night (08:30 UTC). The quiet hour 01:00 is its first occurrence, 01:00 MDT = 07:00 UTC.
+        let fall_back_s = 1_793_520_000;
+        let (dep, act_by) = (fall_back_s + 5 * 3600, fall_back_s + 1800);
+        assert!(raise(dep, act_by, 1, fall_back_s - 3601).is_empty());
+        assert_eq!(
+            raise(dep, act_by, 1, fall_back_s - 3600),
+            ["act by 2026-11-01T01:30:00-07:00: Plug in the block heater."]
+        );
+        // Spring forward: departure 06:00 MDT (12:00 UTC), deadline 03:30 MDT (09:30 UTC). The
+        // quiet hour 02:00 does not exist that night: it ends when the clocks jump, 09:00 UTC.
+        let spring_s = 1_805_014_800;
+        let (dep, act_by) = (spring_s + 3 * 3600, spring_s + 1800);
+        assert!(raise(dep, act_by, 2, spring_s - 1).is_empty());
+        assert_eq!(
+            raise(dep, act_by, 2, spring_s),
+            ["act by 2027-03-14T03:30:00-06:00: Plug in the block heater."]
+        );
     }
 
     #[test]

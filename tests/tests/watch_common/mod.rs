@@ -60,6 +60,7 @@ pub fn vehicle(seq: u64, i: usize, zone_id: &str) -> pb::WatchFleetRequest {
             forecast_zone_id: zone_id.to_string(),
             depot_id: "north-yard".to_string(),
             departure_time: Some(at_hour(DEPARTURE_H)),
+            time_zone: String::new(),
         })),
         sequence: seq,
     }
