@@ -304,7 +304,7 @@ impl VehicleProfileBuilder {
     pub fn additive(mut self, cfpp_improvement_k: Option<f64>, fuel_c_when_added: f64) -> Self {
         self.fuel.additive = Some(api::AdditiveTreatment {
             cfpp_improvement_k,
-            fuel_c_when_added,
+            fuel_c_when_added: Some(fuel_c_when_added),
         });
         self
     }
@@ -491,10 +491,9 @@ fn check_fuel(c: &mut Checker, f: &api::FuelSpec) {
             a.cfpp_improvement_k,
             Checker::non_negative,
         );
-        c.finite(
-            &format!("{p}.additive.fuel_c_when_added"),
-            a.fuel_c_when_added,
-        );
+        if let Some(t) = a.fuel_c_when_added {
+            c.finite(&format!("{p}.additive.fuel_c_when_added"), t);
+        }
     }
     c.opt(
         &format!("{p}.cetane_number"),

@@ -491,7 +491,7 @@ fn battery_from_pb(v: &mut Violations, b: Option<&pb::BatterySpec>, path: &str) 
             .map(|p| p / 100.0),
         health_fraction: v
             .opt_range(&f("health_pct"), b.health_pct, 5.0, 100.0, "%")
-            .map_or(1.0, |p| p / 100.0),
+            .map_or(ASSUMED_BATTERY_HEALTH_PCT / 100.0, |p| p / 100.0),
     }
 }
 
@@ -511,6 +511,16 @@ fn fuel_from_pb(v: &mut Violations, fpb: Option<&pb::FuelSpec>, path: &str) -> F
         v.add(f("grade"), format!("unknown value {}", fpb.grade));
     }
     let base = match (&fpb.measured, grade) {
+        (Some(m), _) if m.cloud_point_c == 0.0 && m.cfpp_c == 0.0 && m.pour_point_c == 0.0 => {
+            // An empty message reads as 0 °C limits: far from any certificate, and not to be
+            // guessed at (a grade is the way to give typical limits).
+            v.add(
+                f("measured"),
+                "is empty (cloud point, CFPP and pour point all 0 °C): give the certificate's \
+                 three limits, or leave measured out and give the grade",
+            );
+            FuelBase::Grade(startmargin_model::fuel::FuelGrade::UsNo2)
+        }
         (Some(m), _) => {
             let cp = v.range(
                 &f("measured.cloud_point_c"),
@@ -570,17 +580,21 @@ fn fuel_from_pb(v: &mut Violations, fpb: Option<&pb::FuelSpec>, path: &str) -> F
                 "K",
             )
             .unwrap_or(startmargin_model::fuel::TYPICAL_ADDITIVE_CFPP_IMPROVEMENT_K),
-        fuel_t_when_added_k: celsius_to_kelvin(v.range(
-            &f("additive.fuel_c_when_added"),
-            a.fuel_c_when_added,
-            -60.0,
-            50.0,
-            "°C",
-        )),
+        fuel_t_when_added_k: celsius_to_kelvin(
+            v.opt_range(
+                &f("additive.fuel_c_when_added"),
+                a.fuel_c_when_added,
+                -60.0,
+                50.0,
+                "°C",
+            )
+            .unwrap_or(ASSUMED_FUEL_C_WHEN_ADDED),
+        ),
     });
     let filter_mount = match pb::FilterMount::try_from(fpb.filter_mount) {
-        Ok(pb::FilterMount::Frame) => FilterMount::Frame,
-        Ok(_) => FilterMount::EngineBay,
+        Ok(pb::FilterMount::EngineBay) => FilterMount::EngineBay,
+        // Not given: exposed on the frame, the cautious side (see `assumed_inputs`).
+        Ok(_) => FilterMount::Frame,
         Err(_) => {
             v.add(
                 f("filter_mount"),
@@ -782,6 +796,142 @@ pub fn check_id(field: &str, id: &str, required: bool) -> Result<(), ApiError> {
     let mut v = Violations::default();
     v.id(field, id, required);
     v.finish(())
+}
+
+/// Battery health taken when `BatterySpec.health_pct` is absent, percent of a new battery.
+/// A battery a few winters into fleet service commonly delivers 70 to 90 % of its rated CCA
+/// (common practice (no source)); taking it as new would hide slow cranking.
+pub const ASSUMED_BATTERY_HEALTH_PCT: f64 = 80.0;
+/// Fuel temperature taken when `AdditiveTreatment.fuel_c_when_added` is absent, °C: the bottom
+/// of the accepted range, below any fuel's cloud point, so the additive earns only what the
+/// model gives one mixed into fuel that already holds wax (its residual share).
+pub const ASSUMED_FUEL_C_WHEN_ADDED: f64 = -60.0;
+
+/// Every absent input of `night` that changes the answer, with the value the conversion took
+/// and why. `converted` is the model's input made from it; `zone` its time zone. Field paths
+/// are relative to the `VehicleNight`, so that every call that carries one (AssessVehicle,
+/// AssessFleet, the watch) names them alike.
+pub fn assumed_inputs(
+    night: &pb::VehicleNight,
+    converted: &VehicleNight,
+    zone: &Zone,
+) -> Vec<pb::AssumedInput> {
+    let mut out = Vec::new();
+    let mut add = |field: &str, value: String, reason: &str| {
+        out.push(pb::AssumedInput {
+            field: field.to_string(),
+            value,
+            reason: reason.to_string(),
+        });
+    };
+    if zone.assumed {
+        add(
+            "time_zone",
+            "UTC".into(),
+            "no depot time zone given: the times in this answer's text are UTC",
+        );
+    }
+    let telemetry = night.telemetry.as_ref();
+    if telemetry.is_none() {
+        add(
+            "telemetry",
+            "soaked to the air at the forecast start".into(),
+            "no report: the engine, battery and fuel are taken as already cold, with no heat \
+             left from the last run",
+        );
+    }
+    if telemetry.and_then(|t| t.fuel_level_pct).is_none() {
+        add(
+            "telemetry.fuel_level_pct",
+            "50 %".into(),
+            "fuel level not reported: a half-full tank; a lower level cools faster",
+        );
+    }
+    let Some(vehicle) = night.vehicle.as_ref() else {
+        return out;
+    };
+    if converted.aids.glow_plugs.is_some()
+        && vehicle
+            .aids
+            .as_ref()
+            .is_none_or(|a| a.glow_plug_health == pb::GlowPlugHealth::Unspecified as i32)
+    {
+        add(
+            "vehicle.aids.glow_plug_health",
+            "GLOW_PLUG_HEALTH_WORKING".into(),
+            "not reported: taken as working (taking a fault would send every such vehicle to \
+             the workshop); report PLUG_FAILED or RELAY_STUCK from diagnostics to assess \
+             without them",
+        );
+    }
+    let battery = vehicle.battery.as_ref();
+    if battery.and_then(|b| b.state_of_charge_pct).is_none()
+        && telemetry.and_then(|t| t.battery_rest_v).is_none()
+    {
+        add(
+            "vehicle.battery.state_of_charge_pct",
+            format!("{:.0} %", assess::DEFAULT_STATE_OF_CHARGE * 100.0),
+            "neither a state of charge nor a rested voltage (telemetry.battery_rest_v): a \
+             winter fleet battery's usual charge, below full so that slow cranking is not \
+             hidden",
+        );
+    }
+    if battery.is_some_and(|b| b.health_pct.is_none()) {
+        add(
+            "vehicle.battery.health_pct",
+            format!("{ASSUMED_BATTERY_HEALTH_PCT:.0} %"),
+            "battery health not given: a battery a few winters into service, not a new one",
+        );
+    }
+    let Some(fuel) = vehicle.fuel.as_ref() else {
+        return out;
+    };
+    if fuel.filter_mount == pb::FilterMount::Unspecified as i32 {
+        add(
+            "vehicle.fuel.filter_mount",
+            "FILTER_MOUNT_FRAME".into(),
+            "filter position not given: exposed on the frame, cooling with the air; the \
+             engine bay would credit warmth a frame-mounted filter never gets",
+        );
+    }
+    if fuel.cetane_number.is_none() {
+        add(
+            "vehicle.fuel.cetane_number",
+            "the grade's typical value".into(),
+            "cetane number not given: the typical value of the fuel's grade",
+        );
+    }
+    if fuel.biodiesel_pct > 0.0
+        && fuel.biodiesel_feedstock == pb::BiodieselFeedstock::Unspecified as i32
+    {
+        add(
+            "vehicle.fuel.biodiesel_feedstock",
+            "a middle cloud-point shift".into(),
+            "feedstock not given: between the mildest and the harshest feedstocks",
+        );
+    }
+    if let Some(a) = fuel.additive.as_ref() {
+        if a.cfpp_improvement_k.is_none() {
+            add(
+                "vehicle.fuel.additive.cfpp_improvement_k",
+                format!(
+                    "{} K",
+                    startmargin_model::fuel::TYPICAL_ADDITIVE_CFPP_IMPROVEMENT_K
+                ),
+                "the product's claim not given: a typical claimed CFPP improvement",
+            );
+        }
+        if a.fuel_c_when_added.is_none() {
+            add(
+                "vehicle.fuel.additive.fuel_c_when_added",
+                format!("{ASSUMED_FUEL_C_WHEN_ADDED} °C (below the cloud point)"),
+                "not given: taken as mixed in below the cloud point, where an additive earns \
+                 little; assuming it went into warm fuel would credit a CFPP gain the fuel \
+                 may not have",
+            );
+        }
+    }
+    out
 }
 
 /// Validates and converts one vehicle night. Returns the vehicle id and the model's input.
@@ -1078,6 +1228,7 @@ pub fn decide(
     message.depot_id = night.depot_id.clone();
     message.actions = d.actions.iter().map(|a| action_to_pb(a, &zone)).collect();
     message.time_zone = zone.name.clone();
+    message.assumed = assumed_inputs(night, &domain, &zone);
     message.binding_mode = failure_mode_to_pb(p.binding) as i32;
     message.modes = FailureMode::ALL
         .iter()
@@ -1446,6 +1597,7 @@ pub fn assessment_to_pb(
         modes: Vec::new(),
         headline: String::new(),
         time_zone: String::new(),
+        assumed: Vec::new(),
     }
 }
 

@@ -46,9 +46,11 @@ pub const MAX_FORECAST_STEPS: usize = 168;
 /// typical 100–250 rpm diesel cranking band, reference.md §8.6, from memory).
 pub const INTAKE_HEATER_REFERENCE_RPM: f64 = 150.0;
 
-/// State of charge assumed when neither the profile nor a rested voltage gives one (estimate:
-/// a vehicle in daily service with a working charging system).
-pub const DEFAULT_STATE_OF_CHARGE: f64 = 0.9;
+/// State of charge assumed when neither the profile nor a rested voltage gives one: the cautious
+/// side of a winter fleet battery (short trips and long idle nights leave lead-acid batteries in
+/// daily service near 70 to 80 %, common practice (no source)); a fully charged one would hide
+/// the slow-cranking failure the assessment is there to find.
+pub const DEFAULT_STATE_OF_CHARGE: f64 = 0.75;
 
 /// The starting battery as the caller describes it.
 #[derive(Debug, Clone, Copy, PartialEq)]
