@@ -6,7 +6,7 @@ use std::time::{SystemTime, UNIX_EPOCH};
 use startmargin_sdk::VehicleAssessment;
 use startmargin_sdk::time::unix_s;
 
-use crate::scenario::{DepotVehicle, Scenario, UTC_OFFSET_S, local_hhmm};
+use crate::scenario::{DepotVehicle, Scenario, local_clock, zone_label};
 use crate::style::{self, draw_marker};
 use crate::svg::{Anchor, Linear, Stroke, Svg, nice_ticks};
 use crate::table::gel_words;
@@ -26,7 +26,7 @@ fn secs(t: SystemTime) -> f64 {
 }
 
 fn hhmm_of_s(s: f64) -> String {
-    local_hhmm(UNIX_EPOCH + std::time::Duration::from_secs_f64(s.max(0.0)))
+    local_clock(UNIX_EPOCH + std::time::Duration::from_secs_f64(s.max(0.0)))
 }
 
 /// Time ticks every `every_h` hours from the forecast start to its end.
@@ -49,11 +49,6 @@ fn padded(values: impl Iterator<Item = f64>, pad: f64, min_pad: f64) -> (f64, f6
     }
     let p = ((hi - lo) * pad).max(min_pad);
     (lo - p, hi + p)
-}
-
-fn offset_label() -> String {
-    let h = UTC_OFFSET_S / 3600;
-    format!("UTC{}{:02}:00", if h < 0 { '−' } else { '+' }, h.abs())
 }
 
 /// Start margin through the night: one line per vehicle (the margin if it left at that hour), the
@@ -170,7 +165,7 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
         ((x0 + x1) / 2.0, y1 + 42.0),
         &format!(
             "local time ({}), invented evening and night",
-            offset_label()
+            zone_label(s.forecast_start)
         ),
         12.0,
         Anchor::Middle,
@@ -201,7 +196,8 @@ pub fn margin_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
             &format!(
                 "{} · {} · {}{}",
                 r.vehicle.archetype,
-                local_hhmm(r.vehicle.departure),
+                // The offset is in the axis title; the legend keeps to its width.
+                local_clock(r.vehicle.departure),
                 crate::table::binding_margin(r.assessment),
                 if r.assessment.start_expected {
                     ""
@@ -399,7 +395,7 @@ pub fn fuel_chart(s: &Scenario, rows: &[Assessed<'_>]) -> String {
         (w / 2.0, h - 10.0),
         &format!(
             "local time ({}), invented evening and night",
-            offset_label()
+            zone_label(s.forecast_start)
         ),
         12.0,
         Anchor::Middle,

@@ -159,7 +159,9 @@ mod tests {
         };
         let text = plan_text(&plan, 3.0);
         assert!(text.contains("1 free on a 2.6 kW circuit. Plug-in plan (optimal):"));
-        assert!(text.contains("PU-11   plug in by 01:30 (750 W): no-start 100.0 % -> 38.2 %"));
+        assert!(
+            text.contains("PU-11   plug in by 01:30 -06:00 (750 W): no-start 100.0 % -> 38.2 %")
+        );
         assert!(text.contains("outdoor-rated cords"));
         assert!(
             text.contains("3.00 unplugged, 2.39 with this plan, 2.67 plugging the coldest first")

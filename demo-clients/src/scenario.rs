@@ -11,7 +11,8 @@
 //! all night; four yard vehicles have block heaters but the yard has only one free outlet on a
 //! 2.6 kW circuit tonight, so the run asks the server for the depot's plug-in plan.
 //!
-//! Times: local time is UTC−06:00 (fixed offset, no daylight saving in January); the API gets UTC.
+//! Times: the yard keeps America/Winnipeg time (UTC−06:00 in January); the API gets UTC instants
+//! and the zone's name, and every time shown to a person is local with its offset.
 //! The forecast starts at 17:00 local, half an hour before the key-off readings, because the model
 //! needs weather from the time of the readings onwards.
 
@@ -35,8 +36,6 @@ pub const YARD_OUTLETS: u32 = 1;
 pub const YARD_CIRCUIT_KW: f64 = 2.6;
 /// IANA time zone of the yard (its offset is UTC−06:00 on the demo's winter night).
 pub const DEPOT_TIME_ZONE: &str = "America/Winnipeg";
-/// Local time offset from UTC, seconds (UTC−06:00).
-pub const UTC_OFFSET_S: i64 = -6 * 3600;
 /// The evening's local date (year, month, day); the night runs into the next morning.
 pub const LOCAL_DATE: (i32, u32, u32) = (2025, 1, 14);
 
@@ -125,33 +124,58 @@ impl From<J1939Error> for ScenarioError {
     }
 }
 
-/// Days from 1970-01-01 to a proleptic Gregorian date (H. Hinnant's days_from_civil).
-fn days_from_civil(y: i32, m: u32, d: u32) -> i64 {
-    let y = i64::from(y) - i64::from(m <= 2);
-    let era = y.div_euclid(400);
-    let yoe = y - era * 400;
-    let m = i64::from(m);
-    let doy = (153 * (if m > 2 { m - 3 } else { m + 9 }) + 2) / 5 + i64::from(d) - 1;
-    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    era * 146_097 + doe - 719_468
+/// The yard's time zone (from the bundled tz database; UTC if it were ever missing).
+pub fn depot_zone() -> jiff::tz::TimeZone {
+    jiff::tz::TimeZone::get(DEPOT_TIME_ZONE).unwrap_or(jiff::tz::TimeZone::UTC)
 }
 
-/// A local wall-clock time on the evening (`next_day` = after midnight) as a UTC instant.
+/// A local wall-clock time on the evening (`next_day` = after midnight) as a UTC instant, by the
+/// zone's rules (jiff's civil arithmetic, so a clock change would be honoured).
 pub fn local(hour: u32, minute: u32, next_day: bool) -> SystemTime {
     let (y, m, d) = LOCAL_DATE;
-    let day = days_from_civil(y, m, d) + i64::from(next_day);
-    let local_s = day * 86_400 + i64::from(hour * 3600 + minute * 60);
-    let utc_s = local_s - UTC_OFFSET_S;
-    UNIX_EPOCH + Duration::from_secs(u64::try_from(utc_s).unwrap_or(0))
+    let zoned = jiff::civil::date(y as i16, m as i8, d as i8)
+        .checked_add(jiff::Span::new().days(i64::from(next_day)))
+        .and_then(|day| {
+            day.at(hour as i8, minute as i8, 0, 0)
+                .to_zoned(depot_zone())
+        });
+    match zoned {
+        Ok(z) => {
+            UNIX_EPOCH + Duration::from_secs(u64::try_from(z.timestamp().as_second()).unwrap_or(0))
+        }
+        Err(_) => UNIX_EPOCH,
+    }
 }
 
-/// Local wall-clock "HH:MM" of an instant.
-pub fn local_hhmm(t: SystemTime) -> String {
+fn zoned(t: SystemTime) -> jiff::Zoned {
     let s = t
         .duration_since(UNIX_EPOCH)
         .map_or(0, |d| i64::try_from(d.as_secs()).unwrap_or(i64::MAX));
-    let local = (s + UTC_OFFSET_S).rem_euclid(86_400);
-    format!("{:02}:{:02}", local / 3600, (local % 3600) / 60)
+    jiff::Timestamp::from_second(s)
+        .unwrap_or(jiff::Timestamp::UNIX_EPOCH)
+        .to_zoned(depot_zone())
+}
+
+/// Local time of an instant with its offset, e.g. `17:30 -06:00` (tables, legends, console).
+pub fn local_hhmm(t: SystemTime) -> String {
+    zoned(t).strftime("%H:%M %:z").to_string()
+}
+
+/// Local wall-clock `HH:MM` alone, for chart axes whose title gives the offset.
+pub fn local_clock(t: SystemTime) -> String {
+    zoned(t).strftime("%H:%M").to_string()
+}
+
+/// The zone and its offset at an instant, e.g. `America/Winnipeg, UTC−06:00`, for axis titles.
+pub fn zone_label(t: SystemTime) -> String {
+    let z = zoned(t);
+    let s = z.offset().seconds();
+    format!(
+        "{DEPOT_TIME_ZONE}, UTC{}{:02}:{:02}",
+        if s < 0 { '−' } else { '+' },
+        s.abs() / 3600,
+        (s.abs() % 3600) / 60
+    )
 }
 
 /// Common part of every profile of the depot.
@@ -410,6 +434,7 @@ pub fn evening_cold_front() -> Result<Scenario, ScenarioError> {
             if e.in_yard {
                 night = night.depot(DEPOT_ID);
             }
+            night = night.time_zone(DEPOT_TIME_ZONE);
             DepotVehicle {
                 night,
                 archetype: e.archetype,
@@ -453,31 +478,25 @@ mod tests {
     use super::*;
 
     #[test]
-    fn civil_dates() {
-        // 1970-01-01 is day 0; 2000-03-01 is day 11017; 2025-01-14 is day 20102.
-        assert_eq!(days_from_civil(1970, 1, 1), 0);
-        assert_eq!(days_from_civil(2000, 3, 1), 11_017);
-        assert_eq!(days_from_civil(2025, 1, 14), 20_102);
-    }
-
-    #[test]
     fn local_times_round_trip() {
         let t = local(17, 30, false);
-        // 17:30 at UTC−6 is 23:30 UTC on the same date.
+        // 17:30 CST (UTC−6) on 2025-01-14 is 23:30 UTC that day; 2025-01-14 is day 20102 since
+        // 1970-01-01 (checked with `date -u -d 2025-01-14 +%s` = 1736812800).
         assert_eq!(
             t.duration_since(UNIX_EPOCH).unwrap().as_secs(),
             20_102 * 86_400 + 23 * 3600 + 1800
         );
-        assert_eq!(local_hhmm(t), "17:30");
-        assert_eq!(local_hhmm(local(4, 30, true)), "04:30");
+        assert_eq!(local_hhmm(t), "17:30 -06:00");
+        assert_eq!(local_clock(local(4, 30, true)), "04:30");
+        assert_eq!(zone_label(t), "America/Winnipeg, UTC−06:00");
     }
 
     #[test]
     fn scenario_is_complete_and_consistent() {
         let s = evening_cold_front().unwrap();
         assert_eq!(s.vehicles.len(), 12);
-        assert_eq!(local_hhmm(s.forecast_start), "17:00");
-        assert_eq!(local_hhmm(s.forecast_end()), "09:00");
+        assert_eq!(local_hhmm(s.forecast_start), "17:00 -06:00");
+        assert_eq!(local_hhmm(s.forecast_end()), "09:00 -06:00");
         let archetypes: std::collections::BTreeSet<_> =
             s.vehicles.iter().map(|v| v.archetype).collect();
         assert_eq!(archetypes.len(), 7, "every archetype appears");

@@ -112,6 +112,13 @@ impl VehicleNight {
         self
     }
 
+    /// The depot's IANA time zone (e.g. `America/Denver`): the answer's texts give times in it
+    /// with their offset. Absent: UTC (the server names that in the answer's `assumed` list).
+    pub fn time_zone(mut self, name: impl Into<String>) -> Self {
+        self.0.time_zone = name.into();
+        self
+    }
+
     fn options_mut(&mut self) -> &mut api::AssessmentOptions {
         self.0.options.get_or_insert_with(Default::default)
     }

@@ -1339,7 +1339,7 @@ fn action_kind_to_pb(k: ActionKind) -> pb::ActionKind {
 /// the depot's local time (the model gives the instant, the service writes it).
 fn action_to_pb(a: &Action, zone: &Zone) -> pb::Action {
     let summary = match a.act_by_s {
-        Some(t) => format!("{} Act by {}.", a.summary, zone.rfc3339(t)),
+        Some(t) => format!("{} Act by {}.", a.summary, zone.deadline(t)),
         None => a.summary.clone(),
     };
     pb::Action {

@@ -72,6 +72,12 @@ impl Zone {
         }
     }
 
+    /// A deadline for a person: RFC 3339 in this zone, floored to the minute (a person reads
+    /// minutes; flooring keeps the written time at or before the real deadline).
+    pub fn deadline(&self, at_s: f64) -> String {
+        self.rfc3339((at_s / 60.0).floor() * 60.0)
+    }
+
     /// An instant as a short local clock time with its offset, e.g. `21:30 -07:00` (tables).
     pub fn short(&self, at_s: f64) -> String {
         match instant(at_s) {
@@ -182,6 +188,10 @@ mod tests {
             "2027-03-14T03:00:00-06:00"
         );
         assert_eq!(utc_rfc3339(FALL_BACK_S as f64), "2026-11-01T08:00:00Z");
+        assert_eq!(
+            d.deadline((FALL_BACK_S + 1859) as f64),
+            "2026-11-01T01:30:00-07:00"
+        );
         assert_eq!(d.rfc3339(f64::NAN), "NaN s");
     }
 

@@ -367,7 +367,11 @@ pub(crate) fn apply_score(
             .iter()
             .find(|x| x.act_by == Some(act_by))
             .map_or("", |x| x.summary.as_str());
-        a.reason = format!("act by {}: {first}", zone.rfc3339(act_by.seconds as f64));
+        // The summary ends with the same deadline; the reason gives it first, once.
+        let first = first
+            .rsplit_once(" Act by ")
+            .map_or(first, |(head, _)| head);
+        a.reason = format!("act by {}: {first}", zone.deadline(act_by.seconds as f64));
         a.act_by = Some(act_by);
         a.actions = s.actions.clone();
         alerts.push(a);
@@ -485,7 +489,7 @@ mod tests {
                 margin_k: -5.0,
                 explanation: "cold".into(),
                 actions: vec![pb::Action {
-                    summary: "Plug in the block heater.".into(),
+                    summary: "Plug in the block heater. Act by then.".into(),
                     act_by: Some(Timestamp {
                         seconds: act_by_s,
                         nanos: 0,
@@ -508,7 +512,8 @@ mod tests {
         assert!(raise(dep, act_by, 1, fall_back_s - 3601).is_empty());
         assert_eq!(
             raise(dep, act_by, 1, fall_back_s - 3600),
-            ["act by 2026-11-01T01:30:00-07:00: Plug in the block heater."]
+            ["act by 2026-11-01T01:30:00-07:00: Plug in the block heater."],
+            "the deadline is given once"
         );
         // Spring forward: departure 06:00 MDT (12:00 UTC), deadline 03:30 MDT (09:30 UTC). The
         // quiet hour 02:00 does not exist that night: it ends when the clocks jump, 09:00 UTC.
