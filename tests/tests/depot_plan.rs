@@ -143,3 +143,90 @@ async fn a_stream_without_outlets_gets_no_plan() -> anyhow::Result<()> {
     assert!(matches!(outcomes[0], Some(Outcome::Assessment(_))));
     server.shutdown().await
 }
+
+/// The depot's time zone: vehicles sent after its outlets without a zone of their own write
+/// their times in it, a vehicle's own zone wins, the plan's text is local, and an unknown
+/// depot zone is refused at its field.
+#[tokio::test]
+async fn the_depot_zone_reaches_its_vehicles_and_its_plan() -> anyhow::Result<()> {
+    let server = TestServer::start().await?;
+    let mut outlets = outlets_item("outlets", "depot-east", OUTLETS);
+    let mut bad = outlets_item("bad-zone", "depot-west", 1);
+    for (item, zone) in [(&mut outlets, "America/Denver"), (&mut bad, "Denver")] {
+        if let Some(pb::assess_fleet_request::Item::DepotOutlets(d)) = item.item.as_mut() {
+            d.time_zone = zone.to_string();
+        }
+    }
+    let mut items = vec![zone_item("z", "depot-east"), outlets, bad];
+    for i in 0..4 {
+        let mut night = sample_night_in_zone(&format!("truck-{i}"), "depot-east");
+        night.depot_id = "depot-east".to_string();
+        night.telemetry = None;
+        let vehicle = night.vehicle.as_mut().expect("vehicle");
+        vehicle.fuel.as_mut().expect("fuel").grade = pb::FuelGrade::En590Arctic1 as i32;
+        vehicle.aids = Some(pb::StartAids {
+            block_heater_w: Some(1_000.0),
+            ..Default::default()
+        });
+        if i == 3 {
+            night.time_zone = "Europe/Oslo".to_string();
+        }
+        items.push(vehicle_item(&format!("v{i}"), night));
+    }
+    let mut results = server
+        .client()
+        .assess_fleet(tokio_stream::iter(items))
+        .await?
+        .into_inner();
+    let mut zones = Vec::new();
+    let mut plan = None;
+    while let Some(r) = results.next().await {
+        let r = r?;
+        match r.outcome {
+            Some(Outcome::Assessment(a)) => {
+                assert!(a.assumed.iter().all(|x| x.field != "time_zone"));
+                // In January Denver is UTC-7 and Oslo UTC+1.
+                let offset = if a.time_zone == "Europe/Oslo" {
+                    "+01:00."
+                } else {
+                    "-07:00."
+                };
+                for action in a.actions.iter().filter(|x| x.act_by.is_some()) {
+                    assert!(action.summary.ends_with(offset), "{}", action.summary);
+                }
+                zones.push(a.time_zone);
+            }
+            Some(Outcome::PlugInPlan(p)) => plan = Some(p),
+            Some(Outcome::Error(status)) => {
+                assert_eq!(r.item_id, "bad-zone");
+                assert_eq!(
+                    violated_fields_in(&status),
+                    ["depot_outlets.time_zone".to_string()]
+                );
+            }
+            None => panic!("an answer without an outcome"),
+        }
+    }
+    zones.sort();
+    assert_eq!(
+        zones,
+        [
+            "America/Denver",
+            "America/Denver",
+            "America/Denver",
+            "Europe/Oslo"
+        ]
+    );
+    let plan = plan.expect("a plan");
+    assert_eq!(plan.time_zone, "America/Denver");
+    assert!(!plan.plug_ins.is_empty());
+    for p in &plan.plug_ins {
+        assert!(
+            p.summary.starts_with("Plug in by 2025-01-1")
+                && p.summary.contains("-07:00: no-start risk"),
+            "{}",
+            p.summary
+        );
+    }
+    server.shutdown().await
+}

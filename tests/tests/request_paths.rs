@@ -259,10 +259,15 @@ async fn watch_faults_are_refused_under_the_update_that_carried_them() -> anyhow
         glow_plug_health: 77,
         ..Default::default()
     });
+    let mut unknown_zone = watched(sample_vehicle("far"));
+    if let Update::Vehicle(w) = &mut unknown_zone {
+        w.time_zone = "Mountain/Nowhere".to_string();
+    }
     let updates = vec![
         // The zone comes last: the faults must be found when each vehicle is sent.
         (1, watched(bad_battery)),
         (2, watched(glow_without_plugs)),
+        (6, unknown_zone),
         (3, watched(sample_vehicle("good"))),
         (
             4,
@@ -323,6 +328,7 @@ async fn watch_faults_are_refused_under_the_update_that_carried_them() -> anyhow
                 "odd".to_string(),
                 vec!["vehicle.vehicle.aids.glow_plug_health".to_string()]
             ),
+            (6, "far".to_string(), vec!["vehicle.time_zone".to_string()]),
             (
                 4,
                 "good".to_string(),
