@@ -227,7 +227,7 @@ pub fn plan_block_heater_in(
     if without.probability.probability <= target {
         return Ok(None);
     }
-    let mut plugged_at = |t: f64| {
+    let plugged_at = |ctx: &mut NightContext, t: f64| {
         outcome_with(night, policy.method, ctx, |n| {
             n.block_heater_plan = Some((t, dep_s))
         })
@@ -241,14 +241,26 @@ pub fn plan_block_heater_in(
         meets_target,
         fixes_verdict: !without.assessment.start_expected && with.assessment.start_expected,
     };
-    let all_night = plugged_at(start_s)?;
+    let all_night = plugged_at(ctx, start_s)?;
     if all_night.probability.probability > target {
         return Ok(Some(plan(start_s, &all_night, false)));
     }
     let (mut early, mut early_outcome, mut late) = (start_s, all_night, dep_s);
     for _ in 0..PLUG_IN_HALVINGS {
         let mid = 0.5 * (early + late);
-        let o = plugged_at(mid)?;
+        // A time whose central margins alone already miss the target needs no sigma points:
+        // the bisection only moves its late end there.
+        if ctx.shares() {
+            let mut n = night.clone();
+            n.options.include_margin_path = false;
+            n.block_heater_plan = Some((mid, dep_s));
+            let centre = assess_in(&n, ctx)?;
+            if super::uncertainty::misses_target_for_sure(&centre, target) {
+                late = mid;
+                continue;
+            }
+        }
+        let o = plugged_at(ctx, mid)?;
         if o.probability.probability <= target {
             (early, early_outcome) = (mid, o);
         } else {

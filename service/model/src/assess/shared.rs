@@ -68,6 +68,11 @@ impl NightContext {
         }
     }
 
+    /// Whether work is shared (false for the unshared reference).
+    pub(super) fn shares(&self) -> bool {
+        !self.unshared
+    }
+
     /// A kept outcome of exactly this night.
     pub(super) fn outcome(&self, night: &VehicleNight) -> Option<&super::actions::Outcome> {
         if self.unshared {

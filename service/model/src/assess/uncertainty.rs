@@ -384,6 +384,16 @@ pub fn no_start_probability_in(
     })
 }
 
+/// True when the no-start probability around `centre` certainly exceeds `target`, from the
+/// central margins alone: every mode's spread is at least its model error, so Φ(−m/σ_model) is a
+/// lower bound of the mode's probability (equal to it below zero). Keep it a lower bound of
+/// [`no_start_probability_from`] whenever that changes (the shared-work grid test checks it).
+pub(crate) fn misses_target_for_sure(centre: &Assessment, target: f64) -> bool {
+    FailureMode::ALL
+        .iter()
+        .any(|&m| normal_cdf(-centre.modes.get(m) / m.model_sigma()) > target)
+}
+
 fn axis(i: usize, s: f64) -> Perturbation {
     let mut p = Perturbation::default();
     match i {
