@@ -343,6 +343,14 @@ fn ratios(s: &mut Setup) {
         black_box(convert::assess_pb(black_box(&night), "night", &empty).expect("valid"));
     }
     let model_cpu_s = (this_thread_cpu_s() - before_s) / f64::from(CPU_CALLS);
+    // The transport's own floor: server CPU of a health check.
+    let before_s = threads_cpu_s(&server_threads);
+    for _ in 0..CPU_CALLS {
+        s.runtime
+            .block_on(s.health.check(HealthCheckRequest::default()))
+            .expect("checked");
+    }
+    let health_cpu_s = (threads_cpu_s(&server_threads) - before_s) / f64::from(CPU_CALLS);
     let fleet_vps = FLEET_VEHICLES as f64 / fleet_s;
     let local_vps = FLEET_VEHICLES as f64 / local_s;
     let us = |x: f64| x * 1e6;
@@ -385,6 +393,11 @@ fn ratios(s: &mut Setup) {
         us(server_cpu_s),
         us(model_cpu_s),
         us(server_cpu_s - model_cpu_s)
+    );
+    println!(
+        "  server CPU per Health Check  {:>9.1} µs: AssessVehicle costs {:.1} µs beyond model + health",
+        us(health_cpu_s),
+        us(server_cpu_s - model_cpu_s - health_cpu_s)
     );
 }
 
