@@ -103,7 +103,8 @@ impl From<VehicleNight> for FleetItem {
 pub enum FleetOutcome {
     /// A vehicle's assessment.
     Assessment(VehicleAssessment),
-    /// A depot's plug-in plan, sent after every vehicle of the stream has its result (see
+    /// A depot's plug-in plan, sent once the input has ended and every vehicle of that depot has
+    /// its result; several depots' plans come as each is computed (see
     /// [`FleetItem::depot_outlets`]).
     PlugInPlan(PlugInPlan),
 }

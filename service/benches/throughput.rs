@@ -1,12 +1,17 @@
 //! Server throughput against no-transport baselines, in one run, over real gRPC on 127.0.0.1:
 //!
 //! - AssessFleet: vehicles per second of a 2,000-vehicle stream (one shared zone forecast)
-//!   against the same requests run in-process through `convert::assess_pb` in a loop (one thread).
-//!   Target: fleet ≥ 0.8 × in-process.
+//!   against the same requests run in-process through `convert::assess_pb` on as many threads as
+//!   the server has compute threads (the same thread count). Target: fleet ≥ 0.9 × in-process.
 //! - AssessVehicle: sequential unary calls per second against sequential `grpc.health.v1` Check
 //!   calls on the same connection (the transport's floor). Target: unary ≥ 0.5 × health check.
+//! - Server CPU per AssessVehicle beyond its model time: the server runs on its own runtime with
+//!   named threads, so the CPU its threads and the compute threads use over a fixed number of
+//!   calls (read from `/proc/self/task/*/schedstat`) is its own, not the client's; the model time
+//!   is the thread CPU of the same call's `convert::assess_pb` in-process. Target: ≤ 30 µs.
 //!
-//! Criterion measures each case; a short fixed-count pass at the end prints the two ratios.
+//! Criterion measures each case; a short fixed-count pass at the end prints the ratios and the
+//! server CPU.
 //! The vehicles are invented: a fictional depot, a made-up cold night.
 
 use std::collections::HashMap;
@@ -144,16 +149,63 @@ async fn fleet_once(
     assert_eq!(assessed, FLEET_VEHICLES);
 }
 
-fn in_process_once(nights: &[pb::VehicleNight], zones: &ZoneForecasts) {
-    for n in nights {
-        black_box(
-            convert::assess_pb(black_box(n), "vehicle", zones).expect("the bench night is valid"),
-        );
+/// The same vehicles in-process, split over `threads` threads (the server's compute threads).
+fn in_process_once(nights: &[pb::VehicleNight], zones: &ZoneForecasts, threads: usize) {
+    let chunk = nights.len().div_ceil(threads.max(1));
+    std::thread::scope(|s| {
+        for part in nights.chunks(chunk) {
+            s.spawn(move || {
+                for n in part {
+                    black_box(
+                        convert::assess_pb(black_box(n), "vehicle", zones)
+                            .expect("the bench night is valid"),
+                    );
+                }
+            });
+        }
+    });
+}
+
+/// Name of the server runtime's threads.
+const SERVER_THREAD: &str = "bench-server";
+/// Prefix of the compute pool's thread names as the kernel keeps them (15 bytes).
+const COMPUTE_THREAD: &str = "startmargin-com";
+
+/// CPU time used so far by this process's threads whose name starts with one of `prefixes`, s
+/// (`schedstat`'s first field: nanoseconds on the CPU).
+fn threads_cpu_s(prefixes: &[&str]) -> f64 {
+    let mut ns: u64 = 0;
+    let Ok(tasks) = std::fs::read_dir("/proc/self/task") else {
+        return f64::NAN;
+    };
+    for t in tasks.flatten() {
+        let dir = t.path();
+        let name = std::fs::read_to_string(dir.join("comm")).unwrap_or_default();
+        if prefixes.iter().any(|p| name.trim_end().starts_with(p)) {
+            let stat = std::fs::read_to_string(dir.join("schedstat")).unwrap_or_default();
+            ns += stat
+                .split_whitespace()
+                .next()
+                .and_then(|x| x.parse::<u64>().ok())
+                .unwrap_or(0);
+        }
     }
+    ns as f64 * 1e-9
+}
+
+/// CPU time used so far by the calling thread, s.
+fn this_thread_cpu_s() -> f64 {
+    std::fs::read_to_string("/proc/thread-self/schedstat")
+        .ok()
+        .and_then(|s| s.split_whitespace().next()?.parse::<u64>().ok())
+        .map_or(f64::NAN, |ns| ns as f64 * 1e-9)
 }
 
 struct Setup {
     runtime: Runtime,
+    /// The server's own runtime (threads named `bench-server`), so its CPU can be told apart.
+    server_runtime: Runtime,
+    threads: usize,
     server: Option<startmargin_service::RunningServer>,
     client: StartMarginServiceClient<Channel>,
     health: HealthClient<Channel>,
@@ -165,16 +217,22 @@ struct Setup {
 
 fn setup() -> Setup {
     let runtime = Runtime::new().expect("tokio runtime");
-    let (server, channel) = runtime.block_on(async {
-        let server = startmargin_service::spawn_on_loopback()
+    let server_runtime = tokio::runtime::Builder::new_multi_thread()
+        .thread_name(SERVER_THREAD)
+        .enable_all()
+        .build()
+        .expect("server runtime");
+    let server = server_runtime.block_on(async {
+        startmargin_service::spawn_on_loopback()
             .await
-            .expect("the server starts");
-        let channel = Channel::from_shared(format!("http://{}", server.addr))
+            .expect("the server starts")
+    });
+    let channel = runtime.block_on(async {
+        Channel::from_shared(format!("http://{}", server.addr))
             .expect("uri")
             .connect()
             .await
-            .expect("connects");
-        (server, channel)
+            .expect("connects")
     });
     let zone = pb::ZoneForecast {
         zone_id: ZONE_ID.to_string(),
@@ -184,6 +242,8 @@ fn setup() -> Setup {
         convert::zone_forecast_from_pb(&zone, "zone_forecast").expect("the bench zone is valid");
     Setup {
         runtime,
+        server_runtime,
+        threads: startmargin_service::Config::default().effective_compute_threads(),
         server: Some(server),
         client: StartMarginServiceClient::new(channel.clone()),
         health: HealthClient::new(channel),
@@ -207,7 +267,7 @@ fn bench(c: &mut Criterion) {
         b.iter(|| s.runtime.block_on(fleet_once(&mut s.client, &s.requests)));
     });
     group.bench_function("in_process_assess_pb", |b| {
-        b.iter(|| in_process_once(&s.nights, &s.zones))
+        b.iter(|| in_process_once(&s.nights, &s.zones, s.threads))
     });
     group.finish();
 
@@ -231,7 +291,7 @@ fn bench(c: &mut Criterion) {
 
     ratios(&mut s);
     if let Some(server) = s.server.take() {
-        s.runtime
+        s.server_runtime
             .block_on(server.shutdown())
             .expect("the server drains");
     }
@@ -251,7 +311,8 @@ fn ratios(s: &mut Setup) {
     let fleet_s = mean_s(5, || {
         s.runtime.block_on(fleet_once(&mut s.client, &s.requests))
     });
-    let local_s = mean_s(5, || in_process_once(&s.nights, &s.zones));
+    let threads = s.threads;
+    let local_s = mean_s(5, || in_process_once(&s.nights, &s.zones, threads));
     let unary_s = mean_s(1_000, || {
         s.runtime
             .block_on(s.client.assess_vehicle(s.unary.clone()))
@@ -267,18 +328,38 @@ fn ratios(s: &mut Setup) {
     let unary_local_s = mean_s(1_000, || {
         black_box(convert::assess_pb(black_box(&night), "night", &empty).expect("valid"));
     });
+    // Server CPU per call against the same call's model time, both as thread CPU.
+    const CPU_CALLS: u32 = 2_000;
+    let server_threads = [SERVER_THREAD, COMPUTE_THREAD];
+    let before_s = threads_cpu_s(&server_threads);
+    for _ in 0..CPU_CALLS {
+        s.runtime
+            .block_on(s.client.assess_vehicle(s.unary.clone()))
+            .expect("assessed");
+    }
+    let server_cpu_s = (threads_cpu_s(&server_threads) - before_s) / f64::from(CPU_CALLS);
+    let before_s = this_thread_cpu_s();
+    for _ in 0..CPU_CALLS {
+        black_box(convert::assess_pb(black_box(&night), "night", &empty).expect("valid"));
+    }
+    let model_cpu_s = (this_thread_cpu_s() - before_s) / f64::from(CPU_CALLS);
+    // The transport's own floor: server CPU of a health check.
+    let before_s = threads_cpu_s(&server_threads);
+    for _ in 0..CPU_CALLS {
+        s.runtime
+            .block_on(s.health.check(HealthCheckRequest::default()))
+            .expect("checked");
+    }
+    let health_cpu_s = (threads_cpu_s(&server_threads) - before_s) / f64::from(CPU_CALLS);
     let fleet_vps = FLEET_VEHICLES as f64 / fleet_s;
     let local_vps = FLEET_VEHICLES as f64 / local_s;
     let us = |x: f64| x * 1e6;
     println!();
-    println!(
-        "throughput summary (compute threads = {}):",
-        startmargin_service::Config::default().effective_compute_threads()
-    );
+    println!("throughput summary (compute threads = {threads}, in-process threads = {threads}):");
     println!("  AssessFleet over gRPC        {fleet_vps:>9.0} vehicles/s");
     println!("  assess_pb in-process loop    {local_vps:>9.0} vehicles/s");
     println!(
-        "  ratio fleet / in-process     {:>9.2}  (target >= 0.80)",
+        "  ratio fleet / in-process     {:>9.2}  (same thread count; target >= 0.90)",
         fleet_vps / local_vps
     );
     println!(
@@ -306,6 +387,17 @@ fn ratios(s: &mut Setup) {
     println!(
         "  ratio (health + in-process) / unary {:.2}  (1.00 = no cost beyond the bare RTT)",
         (health_s + unary_local_s) / unary_s
+    );
+    println!(
+        "  server CPU per AssessVehicle {:>9.1} µs, model thread CPU {:.1} µs: {:.1} µs beyond the model (target <= 30)",
+        us(server_cpu_s),
+        us(model_cpu_s),
+        us(server_cpu_s - model_cpu_s)
+    );
+    println!(
+        "  server CPU per Health Check  {:>9.1} µs: AssessVehicle costs {:.1} µs beyond model + health",
+        us(health_cpu_s),
+        us(server_cpu_s - model_cpu_s - health_cpu_s)
     );
 }
 

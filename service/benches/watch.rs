@@ -3,6 +3,9 @@
 //! - memory per watched vehicle at 100,000 vehicles: the per-vehicle state (struct, encoded
 //!   profile, ids, a full ring of coolant readings, last telemetry) with its table entry, printed
 //!   (target below 2 KiB);
+//! - the same measured as process RSS: `/proc/self/statm` read before 100,000 vehicles are
+//!   watched and after every one has been scored, the difference divided by 100,000 (the client
+//!   runs in the same process; its sent messages are gone and every answer read by then);
 //! - re-score throughput of a zone forecast update for a 10,000-vehicle zone: one update sent,
 //!   timed until the 10,000 outlook changes are back (vehicles re-scored per second).
 //!
@@ -103,6 +106,72 @@ fn memory_per_vehicle(_c: &mut Criterion) {
     );
 }
 
+/// Resident set size of this process, bytes (`/proc/self/statm`, pages of 4 KiB).
+fn rss_bytes() -> u64 {
+    std::fs::read_to_string("/proc/self/statm")
+        .ok()
+        .and_then(|s| s.split_whitespace().nth(1)?.parse::<u64>().ok())
+        .map_or(0, |pages| pages * 4096)
+}
+
+/// Vehicles of the RSS measurement.
+const RSS_VEHICLES: usize = 100_000;
+
+fn memory_rss_per_vehicle(_c: &mut Criterion) {
+    let rt = Runtime::new().expect("runtime");
+    let server = rt
+        .block_on(startmargin_service::spawn_on_loopback())
+        .expect("server");
+    let (before, after) = rt.block_on(async {
+        let channel = tonic::transport::Channel::from_shared(format!("http://{}", server.addr))
+            .expect("uri")
+            .connect()
+            .await
+            .expect("connect");
+        let (tx, input) = mpsc::channel(1024);
+        let mut client = StartMarginServiceClient::new(channel);
+        let mut rx = client
+            .watch_fleet(ReceiverStream::new(input))
+            .await
+            .expect("open")
+            .into_inner();
+        let before = rss_bytes();
+        let sender = tokio::spawn(async move {
+            for i in 0..RSS_VEHICLES {
+                tx.send(request(Update::Vehicle(watched(i))))
+                    .await
+                    .expect("send");
+            }
+            tx.send(request(Update::ZoneForecast(pb::WatchZoneForecast {
+                zone_id: "ridge".to_string(),
+                forecast: Some(forecast(-10.0)),
+            })))
+            .await
+            .expect("send");
+            tx
+        });
+        let mut changes = 0;
+        while changes < RSS_VEHICLES {
+            let r = rx.message().await.expect("no error").expect("open");
+            if matches!(r.event, Some(Event::OutlookChange(_))) {
+                changes += 1;
+            }
+        }
+        let tx = sender.await.expect("sender");
+        let after = rss_bytes();
+        drop(tx);
+        (before, after)
+    });
+    println!(
+        "watch memory as RSS: {:.0} bytes per watched vehicle at 100,000 vehicles \
+         (RSS {:.1} MiB before, {:.1} MiB after scoring; target <= 1024)",
+        after.saturating_sub(before) as f64 / RSS_VEHICLES as f64,
+        before as f64 / 1_048_576.0,
+        after as f64 / 1_048_576.0
+    );
+    rt.block_on(server.shutdown()).expect("shutdown");
+}
+
 /// An open watch stream with the zone's vehicles scored once.
 struct Stream {
     tx: mpsc::Sender<pb::WatchFleetRequest>,
@@ -178,5 +247,10 @@ fn zone_rescore(c: &mut Criterion) {
     rt.block_on(server.shutdown()).expect("shutdown");
 }
 
-criterion_group!(benches, memory_per_vehicle, zone_rescore);
+criterion_group!(
+    benches,
+    memory_per_vehicle,
+    memory_rss_per_vehicle,
+    zone_rescore
+);
 criterion_main!(benches);

@@ -10,7 +10,10 @@
 //! bounded number in flight, each holding a slot until the reader takes its result, so a slow
 //! reader slows the stream instead of growing memory), answers each vehicle as soon as it is
 //! computed, turns a bad item into a per-item `google.rpc.Status` without ending the stream, and
-//! when the input ends sends each depot's plug-in plan after every vehicle's result. A vehicle
+//! once the input has ended, computes each depot's plug-in plan on the compute pool as soon as
+//! every vehicle of that depot has its result, the depots in parallel, each plan sent as it is
+//! done (so a plan follows its own depot's vehicle results; its content depends only on what the
+//! stream sent, never on timing). A vehicle
 //! item needs an item id unique on its stream, so that every result and every planned plug-in can
 //! be mapped back to what was sent, also after a broken stream; a duplicate is refused for that
 //! item alone.
@@ -27,7 +30,7 @@ use startmargin_model::plug_in_plan::PlugInCandidate;
 use startmargin_proto::v1 as pb;
 use startmargin_proto::v1::assess_fleet_request::Item;
 use startmargin_proto::v1::assess_fleet_response::Outcome;
-use tokio::sync::{OwnedSemaphorePermit, Semaphore, mpsc};
+use tokio::sync::{Notify, OwnedSemaphorePermit, Semaphore, mpsc};
 use tokio::time::Instant;
 use tokio_stream::wrappers::ReceiverStream;
 use tokio_stream::{Stream, StreamExt as _};
@@ -192,6 +195,7 @@ impl StartMarginApi {
             zones: Arc::new(HashMap::new()),
             depots: HashMap::new(),
             candidates: Arc::new(Mutex::new(HashMap::new())),
+            progress: Arc::new(DepotProgress::default()),
         };
         tokio::spawn(
             stream
@@ -262,6 +266,64 @@ type Sent = (
 /// Plug-in candidates of a stream's vehicles by depot id: (item id, vehicle id, candidate).
 type Candidates = Arc<Mutex<HashMap<String, Vec<(String, String, PlugInCandidate)>>>>;
 
+/// Vehicles of each depot still computing, and a wake-up each time one finishes.
+#[derive(Debug, Default)]
+struct DepotProgress {
+    pending: Mutex<HashMap<String, usize>>,
+    finished: Notify,
+}
+
+impl DepotProgress {
+    fn started(&self, depot_id: &str) {
+        if let Ok(mut p) = self.pending.lock() {
+            *p.entry(depot_id.to_string()).or_default() += 1;
+        }
+    }
+
+    fn finished(&self, depot_id: &str) {
+        if let Ok(mut p) = self.pending.lock()
+            && let Some(n) = p.get_mut(depot_id)
+        {
+            *n = n.saturating_sub(1);
+        }
+        // Stores a wake-up when nobody waits yet: none is lost.
+        self.finished.notify_one();
+    }
+
+    /// Whether every vehicle of the depot sent so far has its result.
+    fn done(&self, depot_id: &str) -> bool {
+        self.pending
+            .lock()
+            .map(|p| p.get(depot_id).is_none_or(|n| *n == 0))
+            .unwrap_or(true)
+    }
+}
+
+/// A depot's plug-in plan from its candidates: in item order, not completion order, so the same
+/// stream gives the same plan. The plan names each vehicle by its index, then gets its item id
+/// and vehicle id back: item ids are unique, vehicle ids need not be.
+fn depot_plan(
+    depot: &convert::Depot,
+    mut found: Vec<(String, String, PlugInCandidate)>,
+) -> pb::PlugInPlan {
+    found.sort_by(|a, b| a.0.cmp(&b.0));
+    let index: Vec<String> = (0..found.len()).map(|i| i.to_string()).collect();
+    let chosen: Vec<PlugInCandidate> = found.iter().map(|(_, _, c)| *c).collect();
+    let mut plan = convert::plan_to_pb(depot, &index, &chosen);
+    for p in &mut plan.plug_ins {
+        if let Some((item, vehicle, _)) = p
+            .vehicle_id
+            .parse::<usize>()
+            .ok()
+            .and_then(|i| found.get(i))
+        {
+            p.item_id = item.clone();
+            p.vehicle_id = vehicle.clone();
+        }
+    }
+    plan
+}
+
 /// How a fleet stream's input loop ends.
 enum End {
     /// The client closed its side: the last results, then the depots' plans, then OK.
@@ -293,6 +355,8 @@ struct FleetStream {
     depots: HashMap<String, (String, convert::Depot)>,
     /// Plug-in candidates, filled by the compute threads.
     candidates: Candidates,
+    /// Vehicles of each depot still computing.
+    progress: Arc<DepotProgress>,
 }
 
 impl FleetStream {
@@ -360,10 +424,7 @@ impl FleetStream {
 
         let status = match end {
             End::Completed if self.depots.is_empty() => None,
-            End::Completed => match self.wait_for_results().await {
-                Ok(()) => self.send_plans().await.err(),
-                Err(status) => status,
-            },
+            End::Completed => self.send_plans().await.err(),
             End::Abort(status) => Some(status),
             End::AfterInFlight(status) => match self.wait_for_results().await {
                 Ok(()) => Some(status),
@@ -397,67 +458,76 @@ impl FleetStream {
         }
     }
 
-    /// Computes and sends each depot's plug-in plan. `Err` holds the status that ends the stream.
+    /// Computes and sends each depot's plug-in plan: on the compute pool as soon as every vehicle
+    /// of that depot has its result, the depots in parallel, each sent as it is done. `Err` holds
+    /// the status that ends the stream.
     async fn send_plans(&mut self) -> Result<(), Status> {
-        let depots = std::mem::take(&mut self.depots);
-        let candidates = std::mem::take(
-            &mut *self
-                .candidates
-                .lock()
-                .map_err(|_| Status::internal("candidates lost"))?,
-        );
-        let plans = self
-            .pool
-            .run(self.lane, move || {
-                let mut candidates = candidates;
-                let mut plans: Vec<(String, pb::PlugInPlan)> = depots
-                    .into_iter()
-                    .map(|(depot_id, (item_id, depot))| {
-                        let mut found = candidates.remove(&depot_id).unwrap_or_default();
-                        // In item order, not completion order: the same stream, the same plan.
-                        found.sort_by(|a, b| a.0.cmp(&b.0));
-                        // The plan names each vehicle by its index here, then gets its item id
-                        // and vehicle id back: item ids are unique, vehicle ids need not be.
-                        let index: Vec<String> = (0..found.len()).map(|i| i.to_string()).collect();
-                        let chosen: Vec<PlugInCandidate> =
-                            found.iter().map(|(_, _, c)| *c).collect();
-                        let mut plan = convert::plan_to_pb(&depot, &index, &chosen);
-                        for p in &mut plan.plug_ins {
-                            if let Some((item, vehicle, _)) = p
-                                .vehicle_id
-                                .parse::<usize>()
-                                .ok()
-                                .and_then(|i| found.get(i))
-                            {
-                                p.item_id = item.clone();
-                                p.vehicle_id = vehicle.clone();
-                            }
-                        }
-                        (item_id, plan)
-                    })
-                    .collect();
-                plans.sort_by(|a, b| a.1.depot_id.cmp(&b.1.depot_id));
-                Ok(plans)
-            })
-            .await?;
-        for (item_id, plan) in plans {
-            debug!(
-                depot_id = plan.depot_id,
-                chosen = plan.plug_ins.len(),
-                "plug-in plan"
-            );
-            let response = pb::AssessFleetResponse {
-                item_id,
-                vehicle_id: String::new(),
-                outcome: Some(Outcome::PlugInPlan(plan)),
-            };
+        let mut waiting = std::mem::take(&mut self.depots);
+        let (plan_tx, mut plan_rx) =
+            mpsc::unbounded_channel::<(String, Result<pb::PlugInPlan, ApiError>)>();
+        let mut running = 0usize;
+        loop {
+            let ready: Vec<String> = waiting
+                .keys()
+                .filter(|d| self.progress.done(d))
+                .cloned()
+                .collect();
+            for depot_id in ready {
+                let Some((item_id, depot)) = waiting.remove(&depot_id) else {
+                    continue;
+                };
+                let found = self
+                    .candidates
+                    .lock()
+                    .map_err(|_| Status::internal("candidates lost"))?
+                    .remove(&depot_id)
+                    .unwrap_or_default();
+                let tx = plan_tx.clone();
+                self.pool.submit(
+                    self.lane,
+                    Box::new(move || {
+                        let plan = catch_unwind(AssertUnwindSafe(|| {
+                            depot_plan(&depot, found)
+                        }))
+                        .map_err(|_| ApiError::Internal("the plug-in plan panicked".to_string()));
+                        let _ = tx.send((item_id, plan));
+                    }),
+                )?;
+                running += 1;
+            }
+            if running == 0 && waiting.is_empty() {
+                return Ok(());
+            }
             tokio::select! {
                 biased;
                 () = self.draining.cancelled() => return Err(draining_status()),
-                sent = self.tx.send((Ok(response), None)) => if sent.is_err() { return Ok(()) },
+                done = plan_rx.recv(), if running > 0 => {
+                    let Some((item_id, plan)) = done else {
+                        return Err(Status::internal("plug-in plans lost"));
+                    };
+                    running -= 1;
+                    let plan = plan?;
+                    debug!(
+                        depot_id = plan.depot_id,
+                        chosen = plan.plug_ins.len(),
+                        "plug-in plan"
+                    );
+                    let response = pb::AssessFleetResponse {
+                        item_id,
+                        vehicle_id: String::new(),
+                        outcome: Some(Outcome::PlugInPlan(plan)),
+                    };
+                    tokio::select! {
+                        biased;
+                        () = self.draining.cancelled() => return Err(draining_status()),
+                        sent = self.tx.send((Ok(response), None)) => if sent.is_err() { return Ok(()) },
+                        // A reader that stops reading ends the stream, as during the input.
+                        () = tokio::time::sleep(self.limits.stream_idle_timeout) => return Ok(()),
+                    }
+                }
+                () = self.progress.finished.notified(), if !waiting.is_empty() => {}
             }
         }
-        Ok(())
     }
 
     /// Starts the work of one item; `permit` travels with its result (if any) to the reader.
@@ -530,42 +600,50 @@ impl FleetStream {
                 let policy = self.limits.policy;
                 let tx = self.tx.clone();
                 let answer_item = item_id.clone();
-                self.pool
-                    .submit(
-                        self.lane,
-                        Box::new(move || {
-                            let decided = catch_unwind(AssertUnwindSafe(|| {
-                                convert::decide(&night, FLEET_VEHICLE_PATH, &zones, &policy)
-                            }))
-                            .unwrap_or_else(|_| {
-                                Err(ApiError::Internal("the assessment panicked".to_string()))
-                            });
-                            drop(global);
-                            let outcome = match decided {
-                                Ok(decided) => {
-                                    if let Some(candidate) = decided.plug_in
-                                        && let Ok(mut by_depot) = candidates.lock()
-                                    {
-                                        by_depot.entry(night.depot_id.clone()).or_default().push((
-                                            answer_item,
-                                            vehicle_id.clone(),
-                                            candidate,
-                                        ));
-                                    }
-                                    Outcome::Assessment(decided.message)
+                let progress = Arc::clone(&self.progress);
+                let depot_id = night.depot_id.clone();
+                let night_depot = depot_id.clone();
+                progress.started(&depot_id);
+                let submitted = self.pool.submit(
+                    self.lane,
+                    Box::new(move || {
+                        let decided = catch_unwind(AssertUnwindSafe(|| {
+                            convert::decide(&night, FLEET_VEHICLE_PATH, &zones, &policy)
+                        }))
+                        .unwrap_or_else(|_| {
+                            Err(ApiError::Internal("the assessment panicked".to_string()))
+                        });
+                        drop(global);
+                        let outcome = match decided {
+                            Ok(decided) => {
+                                if let Some(candidate) = decided.plug_in
+                                    && let Ok(mut by_depot) = candidates.lock()
+                                {
+                                    by_depot.entry(night.depot_id.clone()).or_default().push((
+                                        answer_item,
+                                        vehicle_id.clone(),
+                                        candidate,
+                                    ));
                                 }
-                                Err(e) => Outcome::Error(to_rpc_status(e)),
-                            };
-                            let response = pb::AssessFleetResponse {
-                                item_id,
-                                vehicle_id,
-                                outcome: Some(outcome),
-                            };
-                            // Never full (the slot reserves the place); closed only when the reader left.
-                            let _ = tx.try_send((Ok(response), Some(permit)));
-                        }),
-                    )
-                    .map_err(|e| End::Abort(e.into()))?;
+                                Outcome::Assessment(decided.message)
+                            }
+                            Err(e) => Outcome::Error(to_rpc_status(e)),
+                        };
+                        let response = pb::AssessFleetResponse {
+                            item_id,
+                            vehicle_id,
+                            outcome: Some(outcome),
+                        };
+                        // Never full (the slot reserves the place); closed only when the reader left.
+                        let _ = tx.try_send((Ok(response), Some(permit)));
+                        // After the result: a depot's plan follows its vehicles' results.
+                        progress.finished(&depot_id);
+                    }),
+                );
+                if let Err(e) = submitted {
+                    self.progress.finished(&night_depot);
+                    return Err(End::Abort(e.into()));
+                }
             }
             None => self.send_error(
                 permit,

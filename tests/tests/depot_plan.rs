@@ -1,4 +1,4 @@
-//! The depot plug-in plan of a fleet stream: after every vehicle's result, each depot that sent
+//! The depot plug-in plan of a fleet stream: after every result of its own vehicles, each depot that sent
 //! its outlets gets one plan that fits its outlets and names only its own vehicles.
 
 use std::collections::HashSet;
@@ -228,5 +228,72 @@ async fn the_depot_zone_reaches_its_vehicles_and_its_plan() -> anyhow::Result<()
             p.summary
         );
     }
+    server.shutdown().await
+}
+
+/// A stream of several depots: each depot's plan follows every result of its own vehicles, and
+/// the same stream sent twice gives the same plans (planning in parallel changes no answer).
+#[tokio::test]
+async fn each_depot_plan_follows_its_own_vehicles_and_repeats_exactly() -> anyhow::Result<()> {
+    let server = TestServer::start().await?;
+    let depots = ["depot-a", "depot-b", "depot-c"];
+    let mut items = vec![zone_item("z", "depot-east")];
+    for (d, depot) in depots.iter().enumerate() {
+        items.push(outlets_item(&format!("outlets-{d}"), depot, 2));
+    }
+    for i in 0..12 {
+        let depot = depots[i % depots.len()];
+        let vehicle_id = format!("truck-{i:02}");
+        let mut night = sample_night_in_zone(&vehicle_id, "depot-east");
+        night.depot_id = depot.to_string();
+        let vehicle = night.vehicle.as_mut().expect("vehicle");
+        vehicle.fuel.as_mut().expect("fuel").grade = pb::FuelGrade::En590Arctic1 as i32;
+        vehicle.aids = Some(pb::StartAids {
+            block_heater_w: Some(1_000.0),
+            ..Default::default()
+        });
+        if i % 2 == 0 {
+            night.telemetry = None;
+        }
+        items.push(vehicle_item(&format!("v{i}"), night));
+    }
+    let mut runs = Vec::new();
+    for _ in 0..2 {
+        let mut results = server
+            .client()
+            .assess_fleet(tokio_stream::iter(items.clone()))
+            .await?
+            .into_inner();
+        let mut planned = HashSet::new();
+        let mut plans = std::collections::BTreeMap::new();
+        while let Some(r) = results.next().await {
+            let r = r?;
+            match r.outcome {
+                Some(Outcome::Assessment(a)) => {
+                    assert!(
+                        !planned.contains(&a.depot_id),
+                        "a vehicle of {} came after its depot's plan",
+                        a.depot_id
+                    );
+                }
+                Some(Outcome::PlugInPlan(plan)) => {
+                    planned.insert(plan.depot_id.clone());
+                    plans.insert(plan.depot_id.clone(), (r.item_id, plan));
+                }
+                other => panic!("unexpected outcome {other:?}"),
+            }
+        }
+        assert_eq!(plans.len(), depots.len(), "one plan per depot");
+        for (depot, (item_id, plan)) in &plans {
+            let d = depots
+                .iter()
+                .position(|x| x == depot)
+                .expect("a known depot");
+            assert_eq!(item_id, &format!("outlets-{d}"));
+            assert!(plan.plug_ins.len() <= 2);
+        }
+        runs.push(plans);
+    }
+    assert_eq!(runs[0], runs[1], "the same stream, the same plans");
     server.shutdown().await
 }

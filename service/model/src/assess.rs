@@ -17,6 +17,7 @@ pub mod actions;
 pub mod calibration;
 pub mod decision;
 pub mod outlook;
+pub mod shared;
 pub mod unassisted;
 pub mod uncertainty;
 
@@ -35,6 +36,7 @@ use crate::ignition::{self, DelayCorrelation};
 use crate::induction;
 use crate::oil::{self, SaeGrade};
 use crate::soak::{self, FilterMount, Forecast, ForecastHour, HeaterSchedule, ThermalNode};
+use shared::{Chain, NightContext, Soak};
 
 /// Version of the model, reported with every answer.
 pub const MODEL_VERSION: &str = concat!("startmargin-model ", env!("CARGO_PKG_VERSION"));
@@ -650,6 +652,12 @@ fn validate(night: &VehicleNight) -> Result<(), ModelError> {
 
 /// Assesses one vehicle for one departure.
 pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
+    assess_in(night, &mut NightContext::new())
+}
+
+/// Assesses one vehicle for one departure, sharing work with the vehicle's other runs through
+/// `ctx` (see [`shared`]): the same answer as [`assess`].
+pub fn assess_in(night: &VehicleNight, ctx: &mut NightContext) -> Result<Assessment, ModelError> {
     validate(night)?;
     let start = start_state(night)?;
     let fuel_level = night.telemetry.fuel_level_fraction.unwrap_or(0.5);
@@ -658,10 +666,11 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
     let heater = heater_schedule(night);
     let soc = state_of_charge(night)?;
 
+    let mut soak = ctx.soaks.soak(night, &nodes, &start)?;
     let point = start_point(
         night,
-        &nodes,
-        &start,
+        &mut soak,
+        &mut ctx.chains,
         heater.as_ref(),
         soc,
         night.departure_s,
@@ -669,7 +678,7 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
 
     // Fuel path, hourly from the start of the night, then the departure itself.
     let cold_flow = fuel::cold_flow_properties(&night.fuel.description)?;
-    let fuel_path = fuel_path(night, &nodes, &start)?;
+    let fuel_path = soak.fuel_path(&night.forecast.view(), &start, night.departure_s)?;
     let gel = gel_risk::gel_outlook(&cold_flow, &fuel_path, night.departure_s)?;
 
     let margin_k = point.budget.margin_k();
@@ -688,7 +697,14 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
     let start_expected = modes.all_positive();
 
     let margin_path = if night.options.include_margin_path {
-        margin_path(night, &nodes, &start, heater.as_ref(), soc)?
+        margin_path(
+            night,
+            &mut soak,
+            &mut ctx.chains,
+            &start,
+            heater.as_ref(),
+            soc,
+        )?
     } else {
         Vec::new()
     };
@@ -757,20 +773,15 @@ struct StartPoint {
 
 fn start_point(
     night: &VehicleNight,
-    nodes: &Nodes,
-    start: &StartState,
+    soak: &mut Soak<'_>,
+    chains: &mut shared::Chains,
     heater: Option<&HeaterSchedule>,
     state_of_charge: f64,
     at_s: f64,
 ) -> Result<StartPoint, ModelError> {
     let f = night.forecast.view();
-    let t = |node: &ThermalNode, t0: f64, h: Option<&HeaterSchedule>| {
-        soak::node_temperature_k(node, t0, start.at_s, &f, h, at_s)
-    };
-    let engine_t_k = t(&nodes.engine, start.engine_t_k, heater)?;
-    let battery_t_k = t(&nodes.battery, start.battery_t_k, None)?;
-    let fuel_tank_t_k = t(&nodes.tank, start.tank_t_k, None)?;
-    let fuel_filter_t_k = t(&nodes.filter, start.filter_t_k, None)?;
+    let [engine_t_k, battery_t_k, fuel_tank_t_k, fuel_filter_t_k] =
+        soak.temperatures_k(&f, heater, at_s)?;
     let hour = forecast_step(&f, at_s)?;
     // Between the telemetry's own ambient and the forecast, the forecast holds at departure.
     let air_t_k = hour.air_t_k;
@@ -814,7 +825,10 @@ fn start_point(
     // budget is then shown at the minimum starting speed (the best the starter would need to do).
     let crank_rpm = result.crank_rpm.max(engine.min_start_speed_rpm);
     let cetane = fuel::cetane_number(&night.fuel.description)?;
-    let budget = heat_budget(night, air_t_k, engine_t_k, fuel_tank_t_k, crank_rpm, cetane)?;
+    let chain = chains.chain(night, air_t_k, engine_t_k, crank_rpm, || {
+        compression_chain(night, air_t_k, engine_t_k, crank_rpm)
+    })?;
+    let budget = heat_budget(night, &chain, air_t_k, fuel_tank_t_k, crank_rpm, cetane)?;
     Ok(StartPoint {
         budget,
         cranking,
@@ -858,15 +872,14 @@ pub fn leak_area_m2(engine: &EngineConfig) -> Result<f64, ModelError> {
     }
 }
 
-/// The sequential heat budget at one cranking state.
-fn heat_budget(
+/// The compressions of one cranking state: the charge at intake valve closing, the ideal, walled
+/// and leaking compressions, and the one from the intake heater's warmer intake.
+fn compression_chain(
     night: &VehicleNight,
     air_t_k: f64,
     wall_t_k: f64,
-    fuel_t_k: f64,
     crank_rpm: f64,
-    cetane_number: f64,
-) -> Result<HeatBudget, ModelError> {
+) -> Result<Chain, ModelError> {
     let engine = &night.engine;
     let intake_p_pa = night.forecast.barometric_pa;
     let leak_area_m2 = engine.leak_area_m2;
@@ -898,17 +911,7 @@ fn heat_budget(
         ..with_walls
     };
     let full = compression::compress(&with_leak)?;
-    let walls_t_k = charge_t_k(&walls, engine.combustion);
-    let full_t_k = charge_t_k(&full, engine.combustion);
-    let evaporation_loss_k = evaporation::evaporation_cooling_k(
-        calibration::CRANKING_AIR_FUEL_RATIO,
-        fuel_t_k,
-        full_t_k,
-        air::cv_j_per_kg_k(full_t_k),
-    )?;
-
-    // Intake heater: the same chain from a warmer intake; its gain is the difference it makes.
-    let (intake_heater_gain_k, tdc) = if night.aids.intake_heater_w > 0.0 {
+    let heated = if night.aids.intake_heater_w > 0.0 {
         // The air stream is taken at a nominal cranking speed, not the actual one: otherwise a
         // weaker battery (slower cranking, less air) would earn a larger heater rise, and anything
         // that helps cranking would cost heater gain, which the trade does not see.
@@ -935,23 +938,65 @@ fn heat_budget(
             wall_t_k,
         )?
         .ivc_t_k;
-        let heated = compression::compress(&CompressionInput {
+        Some(compression::compress(&CompressionInput {
             intake_t_k: heated_ivc_t_k,
             ..with_leak
-        })?;
-        let heated_t_k = charge_t_k(&heated, engine.combustion);
-        let heated_evap_k = evaporation::evaporation_cooling_k(
-            calibration::CRANKING_AIR_FUEL_RATIO,
-            fuel_t_k,
-            heated_t_k,
-            air::cv_j_per_kg_k(heated_t_k),
-        )?;
-        (
-            (heated_t_k - heated_evap_k) - (full_t_k - evaporation_loss_k),
-            heated,
-        )
+        })?)
     } else {
-        (0.0, full)
+        None
+    };
+    Ok(Chain {
+        ivc_t_k,
+        ideal_end_t_k,
+        walls,
+        full,
+        heated,
+    })
+}
+
+/// The sequential heat budget at one cranking state, from its compression chain.
+fn heat_budget(
+    night: &VehicleNight,
+    chain: &Chain,
+    air_t_k: f64,
+    fuel_t_k: f64,
+    crank_rpm: f64,
+    cetane_number: f64,
+) -> Result<HeatBudget, ModelError> {
+    let engine = &night.engine;
+    let intake_p_pa = night.forecast.barometric_pa;
+    let Chain {
+        ivc_t_k,
+        ideal_end_t_k,
+        walls,
+        full,
+        heated,
+    } = *chain;
+    let walls_t_k = charge_t_k(&walls, engine.combustion);
+    let full_t_k = charge_t_k(&full, engine.combustion);
+    let evaporation_loss_k = evaporation::evaporation_cooling_k(
+        calibration::CRANKING_AIR_FUEL_RATIO,
+        fuel_t_k,
+        full_t_k,
+        air::cv_j_per_kg_k(full_t_k),
+    )?;
+
+    // Intake heater: the same chain from a warmer intake; its gain is the difference it makes.
+    let (intake_heater_gain_k, tdc) = match heated {
+        Some(heated) => {
+            let heated_t_k = charge_t_k(&heated, engine.combustion);
+            let heated_evap_k = evaporation::evaporation_cooling_k(
+                calibration::CRANKING_AIR_FUEL_RATIO,
+                fuel_t_k,
+                heated_t_k,
+                air::cv_j_per_kg_k(heated_t_k),
+            )?;
+            (
+                (heated_t_k - heated_evap_k) - (full_t_k - evaporation_loss_k),
+                heated,
+            )
+        }
+        None => (0.0, full),
     };
     let glow_plug_gain_k = match night.aids.glow_plugs {
         Some(g) => aids::glow_plug_gain_k(&g, night.aids.glow_preheat_s)?,
@@ -987,50 +1032,6 @@ fn heat_budget(
     })
 }
 
-/// Fuel temperatures at every forecast step boundary after the start, and at departure.
-fn fuel_path(
-    night: &VehicleNight,
-    nodes: &Nodes,
-    start: &StartState,
-) -> Result<Vec<FuelTemperatureSample>, ModelError> {
-    let f = night.forecast.view();
-    let mut path = Vec::with_capacity(night.forecast.hours.len() + 2);
-    let mut sample = FuelTemperatureSample {
-        at_s: start.at_s,
-        tank_t_k: start.tank_t_k,
-        line_t_k: line_t_k(start.tank_t_k, start.filter_t_k),
-        filter_t_k: start.filter_t_k,
-    };
-    path.push(sample);
-    let mut k = ((start.at_s - f.start_s) / f.step_s).floor() as usize + 1;
-    loop {
-        let next_s = (f.start_s + k as f64 * f.step_s).min(night.departure_s);
-        if next_s <= sample.at_s {
-            break;
-        }
-        // Exact piecewise solution: chaining from the previous sample equals solving from the start.
-        let tank_t_k =
-            soak::node_temperature_k(&nodes.tank, sample.tank_t_k, sample.at_s, &f, None, next_s)?;
-        let filter_t_k = soak::node_temperature_k(
-            &nodes.filter,
-            sample.filter_t_k,
-            sample.at_s,
-            &f,
-            None,
-            next_s,
-        )?;
-        sample = FuelTemperatureSample {
-            at_s: next_s,
-            tank_t_k,
-            line_t_k: line_t_k(tank_t_k, filter_t_k),
-            filter_t_k,
-        };
-        path.push(sample);
-        k += 1;
-    }
-    Ok(path)
-}
-
 /// The line from tank to filter runs along the frame between the two (estimate: their mean).
 fn line_t_k(tank_t_k: f64, filter_t_k: f64) -> f64 {
     0.5 * (tank_t_k + filter_t_k)
@@ -1038,7 +1039,8 @@ fn line_t_k(tank_t_k: f64, filter_t_k: f64) -> f64 {
 
 fn margin_path(
     night: &VehicleNight,
-    nodes: &Nodes,
+    soak: &mut Soak<'_>,
+    chains: &mut shared::Chains,
     start: &StartState,
     heater: Option<&HeaterSchedule>,
     soc: f64,
@@ -1051,7 +1053,7 @@ fn margin_path(
             continue;
         }
         let at_s = at_s.min(f.covered_until_s());
-        let p = start_point(night, nodes, start, heater, soc, at_s)?;
+        let p = start_point(night, soak, chains, heater, soc, at_s)?;
         out.push(MarginPoint {
             at_s,
             margin_k: p.budget.margin_k(),

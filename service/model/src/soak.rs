@@ -460,20 +460,54 @@ pub fn node_temperature_k(
     let n_steps = forecast.hours.len();
     let first =
         (((initial_at_s - forecast.start_s) / forecast.step_s).floor() as usize).min(n_steps - 1);
+    integrate_k(
+        node,
+        forecast,
+        heater,
+        initial_t_k,
+        initial_at_s,
+        first,
+        at_s,
+        |_| {},
+    )
+}
+
+/// A node's temperature where a forecast step ends, to resume the soak from (see [`SoakTrace`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct TracePoint {
+    /// Time, s.
+    pub at_s: f64,
+    /// Node temperature, K.
+    pub t_k: f64,
+    /// Index of the forecast step that starts here.
+    pub next_step: usize,
+}
+
+/// The stepping loop of [`node_temperature_k`] from `t_k` at `now_s` inside forecast step `first`
+/// to `at_s` (inputs already checked). `record` sees every step end passed, `at_s` included when
+/// it is one: resuming the loop from a recorded point repeats the very same operations, so the
+/// result is bit for bit that of a run from the start.
+#[allow(clippy::too_many_arguments)]
+fn integrate_k(
+    node: &ThermalNode,
+    forecast: &Forecast<'_>,
+    heater: Option<&HeaterSchedule>,
+    mut t_k: f64,
+    mut now_s: f64,
+    first: usize,
+    at_s: f64,
+    mut record: impl FnMut(TracePoint),
+) -> Result<f64, ModelError> {
+    let n_steps = forecast.hours.len();
     let last = (((at_s - forecast.start_s) / forecast.step_s).ceil() as usize)
         .saturating_sub(1)
         .clamp(first, n_steps - 1);
 
     let rad_w_per_k4 = node.emissivity * STEFAN_BOLTZMANN_W_PER_M2_K4 * node.sky_view_area_m2;
-    let mut t_k = initial_t_k;
-    let mut now_s = initial_at_s;
     for (i, hour) in forecast.hours.iter().enumerate().take(last + 1).skip(first) {
         hour.validate()?;
-        let step_end_s = if i == last {
-            at_s
-        } else {
-            forecast.start_s + (i + 1) as f64 * forecast.step_s
-        };
+        let boundary_s = forecast.start_s + (i + 1) as f64 * forecast.step_s;
+        let step_end_s = if i == last { at_s } else { boundary_s };
         let mut forcing = Forcing {
             heat_capacity_j_per_k: node.heat_capacity_j_per_k,
             ua_w_per_k: convection_coefficient_w_per_m2_k(node.wind_exposure * hour.wind_mps)
@@ -498,8 +532,148 @@ pub fn node_temperature_k(
                 reason: "heater power too large for the node's heat loss: temperature leaves the model",
             });
         }
+        if step_end_s == boundary_s {
+            record(TracePoint {
+                at_s: boundary_s,
+                t_k,
+                next_step: i + 1,
+            });
+        }
     }
     Ok(t_k)
+}
+
+/// One node's soak through the night without a heater, kept at every forecast step end: the
+/// temperature at any later time, with or without a heater switched on from some time, resumes
+/// from the last step end before it instead of from the start of the night (the block-heater
+/// search and the margin path ask for many such times). Same answers as [`node_temperature_k`],
+/// bit for bit (tested).
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct SoakTrace {
+    node: ThermalNode,
+    /// The start of the night, then every step end up to `until_s`.
+    points: Vec<TracePoint>,
+    until_s: f64,
+}
+
+impl SoakTrace {
+    /// Starts a trace of `node` from `initial_t_k` at `initial_at_s`, checked as
+    /// [`node_temperature_k`] checks them, and runs it to `until_s`.
+    pub(crate) fn new(
+        node: &ThermalNode,
+        initial_t_k: f64,
+        initial_at_s: f64,
+        forecast: &Forecast<'_>,
+        until_s: f64,
+    ) -> Result<Self, ModelError> {
+        // The checks of a full run (its answer is the trace's last point).
+        let t_k = node_temperature_k(
+            node,
+            initial_t_k,
+            initial_at_s,
+            forecast,
+            None,
+            initial_at_s,
+        )?;
+        let n_steps = forecast.hours.len();
+        let first = (((initial_at_s - forecast.start_s) / forecast.step_s).floor() as usize)
+            .min(n_steps - 1);
+        let mut trace = Self {
+            node: *node,
+            points: vec![TracePoint {
+                at_s: initial_at_s,
+                t_k,
+                next_step: first,
+            }],
+            until_s: initial_at_s,
+        };
+        trace.extend_to(forecast, until_s)?;
+        Ok(trace)
+    }
+
+    /// Runs the trace on to `until_s` (nothing when it already reaches it).
+    pub(crate) fn extend_to(
+        &mut self,
+        forecast: &Forecast<'_>,
+        until_s: f64,
+    ) -> Result<(), ModelError> {
+        if until_s <= self.until_s {
+            return Ok(());
+        }
+        check_range("at_s", until_s, -1e12, 1e12, "times must be finite")?;
+        let covered_until_s = forecast.covered_until_s();
+        if until_s > covered_until_s {
+            return Err(ModelError::ForecastTooShort {
+                covered_until_s,
+                requested_s: until_s,
+            });
+        }
+        let p = self.points[self.points.len() - 1];
+        if p.next_step < forecast.hours.len() {
+            let points = &mut self.points;
+            integrate_k(
+                &self.node,
+                forecast,
+                None,
+                p.t_k,
+                p.at_s,
+                p.next_step,
+                until_s,
+                |q| points.push(q),
+            )?;
+        }
+        self.until_s = until_s;
+        Ok(())
+    }
+
+    /// The node's temperature at `at_s` (within the trace), with `heater` on when given: resumed
+    /// from the last step end at or before both `at_s` and the heater's switch-on.
+    pub(crate) fn at_k(
+        &self,
+        forecast: &Forecast<'_>,
+        heater: Option<&HeaterSchedule>,
+        at_s: f64,
+    ) -> Result<f64, ModelError> {
+        check_range("at_s", at_s, -1e12, 1e12, "times must be finite")?;
+        if let Some(h) = heater {
+            h.validate()?;
+        }
+        let start = self.points[0];
+        if at_s < start.at_s {
+            return Err(ModelError::Inconsistent(
+                "requested time is before the initial time",
+            ));
+        }
+        let covered_until_s = forecast.covered_until_s();
+        if at_s > covered_until_s {
+            return Err(ModelError::ForecastTooShort {
+                covered_until_s,
+                requested_s: at_s,
+            });
+        }
+        if at_s > self.until_s {
+            return Err(ModelError::Inconsistent(
+                "requested time is beyond the soak trace",
+            ));
+        }
+        // Until the heater switches on, the heated node follows the unheated one exactly.
+        let resume_by_s = heater.map_or(at_s, |h| h.on_from_s.min(at_s));
+        let k = self.points.partition_point(|p| p.at_s <= resume_by_s);
+        let p = self.points[k.saturating_sub(1)];
+        if p.at_s == at_s {
+            return Ok(p.t_k);
+        }
+        integrate_k(
+            &self.node,
+            forecast,
+            heater,
+            p.t_k,
+            p.at_s,
+            p.next_step.min(forecast.hours.len() - 1),
+            at_s,
+            |_| {},
+        )
+    }
 }
 
 /// Fits the cool-down time constant `τ` of `T(t) = T_amb + ΔT₀ exp(−(t − t₀)/τ)` to readings
@@ -1148,6 +1322,45 @@ mod tests {
             fit_cooldown_time_constant_s(&[(0.0, 1e9), (1.0, 300.0), (2.0, 300.0)], 263.15)
                 .is_err()
         );
+    }
+
+    #[test]
+    fn a_trace_resumed_at_any_time_and_heater_equals_a_run_from_the_start_bit_for_bit() {
+        let hours = night();
+        let f = forecast(&hours);
+        let end_s = f.covered_until_s();
+        let node = engine_node(6.7e-3);
+        // From the forecast start and from a reading taken mid-step.
+        for start_s in [f.start_s, f.start_s + 2.3 * HOUR_S] {
+            let mut trace =
+                SoakTrace::new(&node, 353.15, start_s, &f, start_s + 5.0 * HOUR_S).unwrap();
+            trace.extend_to(&f, end_s).unwrap();
+            for k in 0..=56 {
+                let at_s = (start_s + f64::from(k) * 0.25 * HOUR_S + 17.0).min(end_s);
+                let plain = node_temperature_k(&node, 353.15, start_s, &f, None, at_s).unwrap();
+                assert_eq!(
+                    trace.at_k(&f, None, at_s).unwrap().to_bits(),
+                    plain.to_bits()
+                );
+                for from_h in [-1.0, 0.0, 1.0, 3.5, 7.0, 13.9] {
+                    let h = HeaterSchedule {
+                        power_w: 1_000.0,
+                        on_from_s: f.start_s + from_h * HOUR_S,
+                        on_until_s: at_s.max(f.start_s + from_h * HOUR_S),
+                    };
+                    let heated =
+                        node_temperature_k(&node, 353.15, start_s, &f, Some(&h), at_s).unwrap();
+                    assert_eq!(
+                        trace.at_k(&f, Some(&h), at_s).unwrap().to_bits(),
+                        heated.to_bits(),
+                        "start {start_s}, at {at_s}, heater from {from_h} h"
+                    );
+                }
+            }
+            // Outside the trace or the forecast: refused, not extrapolated.
+            assert!(trace.at_k(&f, None, start_s - 1.0).is_err());
+            assert!(trace.at_k(&f, None, end_s + 1.0).is_err());
+        }
     }
 
     #[test]

@@ -11,8 +11,9 @@
 //! Safety cautions are the usual ones of the trade (common practice, no source) and always defer
 //! to the vehicle and equipment manufacturer, local electrical codes and licensed practice.
 
-use super::uncertainty::{Method, NoStartProbability, no_start_probability_from};
-use super::{Assessment, FailureMode, LimitingFactor, VehicleNight, assess};
+use super::shared::NightContext;
+use super::uncertainty::{Method, NoStartProbability, no_start_probability_in};
+use super::{Assessment, FailureMode, LimitingFactor, VehicleNight, assess_in};
 use crate::error::{ModelError, check_range};
 use crate::fuel::{AdditiveTreatment, FuelBase};
 use crate::gel_risk::{self, FuelAdvice, FuelAdviceKind};
@@ -132,25 +133,34 @@ pub fn normal_quantile(p: f64) -> f64 {
 }
 
 /// A night with a change applied, assessed and its probability computed.
-struct Outcome {
-    assessment: Assessment,
-    probability: NoStartProbability,
+#[derive(Debug, Clone)]
+pub(super) struct Outcome {
+    pub(super) assessment: Assessment,
+    pub(super) probability: NoStartProbability,
 }
 
+/// The outcome of `night` with `change` applied (a kept one when this exact night was already
+/// assessed by this vehicle's decision).
 fn outcome_with(
     night: &VehicleNight,
     method: Method,
+    ctx: &mut NightContext,
     change: impl FnOnce(&mut VehicleNight),
 ) -> Result<Outcome, ModelError> {
     let mut n = night.clone();
     n.options.include_margin_path = false;
     change(&mut n);
-    let assessment = assess(&n)?;
-    let probability = no_start_probability_from(&n, &assessment, method)?;
-    Ok(Outcome {
+    if let Some(o) = ctx.outcome(&n) {
+        return Ok(o.clone());
+    }
+    let assessment = assess_in(&n, ctx)?;
+    let probability = no_start_probability_in(&n, &assessment, method, ctx)?;
+    let o = Outcome {
         assessment,
         probability,
-    })
+    };
+    ctx.keep_outcome(n, o.clone());
+    Ok(o)
 }
 
 /// Where the night starts on the model's time axis (telemetry time or forecast start).
@@ -196,6 +206,16 @@ pub fn plan_block_heater(
     night: &VehicleNight,
     policy: &ActionPolicy,
 ) -> Result<Option<HeaterPlan>, ModelError> {
+    plan_block_heater_in(night, policy, &mut NightContext::new())
+}
+
+/// [`plan_block_heater`], sharing work with the vehicle's other runs through `ctx` (each plug-in
+/// time resumes the engine's soak from that time; the battery and fuel are not touched).
+pub fn plan_block_heater_in(
+    night: &VehicleNight,
+    policy: &ActionPolicy,
+    ctx: &mut NightContext,
+) -> Result<Option<HeaterPlan>, ModelError> {
     policy.validate()?;
     if night.aids.block_heater_w <= 0.0 {
         return Ok(None);
@@ -203,12 +223,12 @@ pub fn plan_block_heater(
     let target = policy.target_probability;
     let start_s = night_start_s(night);
     let dep_s = night.departure_s;
-    let without = outcome_with(night, policy.method, |n| n.block_heater_plan = None)?;
+    let without = outcome_with(night, policy.method, ctx, |n| n.block_heater_plan = None)?;
     if without.probability.probability <= target {
         return Ok(None);
     }
-    let plugged_at = |t: f64| {
-        outcome_with(night, policy.method, |n| {
+    let plugged_at = |ctx: &mut NightContext, t: f64| {
+        outcome_with(night, policy.method, ctx, |n| {
             n.block_heater_plan = Some((t, dep_s))
         })
     };
@@ -221,14 +241,26 @@ pub fn plan_block_heater(
         meets_target,
         fixes_verdict: !without.assessment.start_expected && with.assessment.start_expected,
     };
-    let all_night = plugged_at(start_s)?;
+    let all_night = plugged_at(ctx, start_s)?;
     if all_night.probability.probability > target {
         return Ok(Some(plan(start_s, &all_night, false)));
     }
     let (mut early, mut early_outcome, mut late) = (start_s, all_night, dep_s);
     for _ in 0..PLUG_IN_HALVINGS {
         let mid = 0.5 * (early + late);
-        let o = plugged_at(mid)?;
+        // A time whose central margins alone already miss the target needs no sigma points:
+        // the bisection only moves its late end there.
+        if ctx.shares() {
+            let mut n = night.clone();
+            n.options.include_margin_path = false;
+            n.block_heater_plan = Some((mid, dep_s));
+            let centre = assess_in(&n, ctx)?;
+            if super::uncertainty::misses_target_for_sure(&centre, target) {
+                late = mid;
+                continue;
+            }
+        }
+        let o = plugged_at(ctx, mid)?;
         if o.probability.probability <= target {
             (early, early_outcome) = (mid, o);
         } else {
@@ -254,6 +286,19 @@ pub fn recommend(
     policy: &ActionPolicy,
     out: &mut Vec<Action>,
 ) -> Result<(), ModelError> {
+    recommend_in(night, a, p, heater, policy, out, &mut NightContext::new())
+}
+
+/// [`recommend`], sharing work with the vehicle's other runs through `ctx`.
+pub fn recommend_in(
+    night: &VehicleNight,
+    a: &Assessment,
+    p: &NoStartProbability,
+    heater: Option<&HeaterPlan>,
+    policy: &ActionPolicy,
+    out: &mut Vec<Action>,
+    ctx: &mut NightContext,
+) -> Result<(), ModelError> {
     policy.validate()?;
     out.clear();
     let method = policy.method;
@@ -275,7 +320,7 @@ pub fn recommend(
     let helps = |o: &Outcome| o.probability.probability < p.probability - 1e-4;
 
     if a.cranking.result.battery_frozen || p.binding == FailureMode::FrozenBattery && needs_help {
-        let o = outcome_with(night, method, |n| {
+        let o = outcome_with(night, method, ctx, |n| {
             n.telemetry.battery_rest_v = None;
             n.battery.state_of_charge = Some(1.0);
         })?;
@@ -319,7 +364,7 @@ pub fn recommend(
         }
         if let Some(g) = night.aids.glow_plugs {
             if !(g.relay_ok && g.plugs_ok) {
-                let o = outcome_with(night, method, |n| {
+                let o = outcome_with(night, method, ctx, |n| {
                     if let Some(p) = n.aids.glow_plugs.as_mut() {
                         p.relay_ok = true;
                         p.plugs_ok = true;
@@ -336,7 +381,7 @@ pub fn recommend(
             } else {
                 let full_s = 3.0 * g.preheat_time_constant_s;
                 if night.aids.glow_preheat_s < full_s {
-                    let o = outcome_with(night, method, |n| n.aids.glow_preheat_s = full_s)?;
+                    let o = outcome_with(night, method, ctx, |n| n.aids.glow_preheat_s = full_s)?;
                     if helps(&o) {
                         out.push(action(
                             ActionKind::ExtendPreheat,
@@ -357,7 +402,7 @@ pub fn recommend(
                     FailureMode::CrankingSpeed | FailureMode::FrozenBattery
                 ))
         {
-            let o = outcome_with(night, method, |n| {
+            let o = outcome_with(night, method, ctx, |n| {
                 n.telemetry.battery_rest_v = None;
                 n.battery.state_of_charge = Some(1.0);
             })?;
@@ -379,7 +424,7 @@ pub fn recommend(
             }
         }
         if !night.sheltered {
-            let o = outcome_with(night, method, |n| n.sheltered = true)?;
+            let o = outcome_with(night, method, ctx, |n| n.sheltered = true)?;
             if helps(&o) {
                 out.push(action(
                     ActionKind::ParkSheltered,
@@ -396,7 +441,7 @@ pub fn recommend(
                 winter: Some(5),
                 hot: if night.oil.hot >= 40 { 40 } else { 30 },
             };
-            let o = outcome_with(night, method, |n| n.oil = lighter)?;
+            let o = outcome_with(night, method, ctx, |n| n.oil = lighter)?;
             if o.assessment.cranking.result.crank_rpm > a.cranking.result.crank_rpm + 5.0 {
                 out.push(action(
                     ActionKind::LighterOil,
@@ -423,7 +468,7 @@ pub fn recommend(
     )?;
     for f in &fuel {
         // At the lowest gel levels the fuel advice is only worth showing when it changes tonight.
-        if let Some(x) = fuel_action(night, a, f, heater.is_some(), method)?
+        if let Some(x) = fuel_action(night, a, f, heater.is_some(), method, ctx)?
             && !out.iter().any(|y| y.kind == x.kind)
             && (a.gel.level >= crate::gel_risk::GelRiskLevel::WaxForming
                 || x.no_start_after < p.probability - 1e-4)
@@ -456,6 +501,7 @@ fn fuel_action(
     f: &FuelAdvice,
     has_block_heater: bool,
     method: Method,
+    ctx: &mut NightContext,
 ) -> Result<Option<Action>, ModelError> {
     let d = night.fuel.description;
     let (kind, tonight, caution) = match f.kind {
@@ -467,7 +513,7 @@ fn fuel_action(
         FuelAdviceKind::WarmFuel => (ActionKind::WarmFuel, false, CORD_CAUTION),
         FuelAdviceKind::ParkSheltered => (ActionKind::ParkSheltered, true, IDLING_CAUTION),
     };
-    let o = outcome_with(night, method, |n| match f.kind {
+    let o = outcome_with(night, method, ctx, |n| match f.kind {
         FuelAdviceKind::TreatWithAdditiveNow => {
             n.fuel.description.additive = Some(AdditiveTreatment::typical(
                 check_range("fuel_t_k", fuel_now_t_k(night), 183.15, 323.15, "").unwrap_or(273.15),

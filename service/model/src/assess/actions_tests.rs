@@ -9,10 +9,10 @@
 
 use super::*;
 use crate::archetypes::{ARCHETYPES, find};
-use crate::assess::COMFORT_MARGIN_K;
 use crate::assess::decision::{Decision, DecisionPolicy, decide};
 use crate::assess::tests::{DEPARTURE_S, aids_without_intake_heater, service_night};
 use crate::assess::uncertainty::no_start_probability_from;
+use crate::assess::{COMFORT_MARGIN_K, assess};
 use crate::fuel::{FuelBase, FuelGrade};
 
 const BLOCK_HEATER_W: f64 = 1_000.0;

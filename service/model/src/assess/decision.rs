@@ -10,8 +10,9 @@
 
 use super::actions::{self, Action, ActionPolicy, HeaterPlan};
 use super::outlook::{OutlookThresholds, StartOutlook};
+use super::shared::NightContext;
 use super::uncertainty::{self, Method, NoStartProbability};
-use super::{Assessment, LimitingFactor, VehicleNight, assess, cause_of};
+use super::{Assessment, LimitingFactor, VehicleNight, assess_in, cause_of};
 use crate::error::ModelError;
 
 /// The operator's decision policy.
@@ -54,6 +55,17 @@ pub struct Decision {
 
 /// Decides one vehicle's night.
 pub fn decide(night: &VehicleNight, policy: &DecisionPolicy) -> Result<Decision, ModelError> {
+    decide_in(night, policy, &mut NightContext::new())
+}
+
+/// [`decide`] with the work of its runs shared through `ctx` (the reference passes
+/// [`NightContext::unshared`]).
+#[doc(hidden)]
+pub fn decide_in(
+    night: &VehicleNight,
+    policy: &DecisionPolicy,
+    ctx: &mut NightContext,
+) -> Result<Decision, ModelError> {
     let action_policy = ActionPolicy {
         target_probability: policy.target_probability,
         method: policy.method,
@@ -63,8 +75,21 @@ pub fn decide(night: &VehicleNight, policy: &DecisionPolicy) -> Result<Decision,
         .thresholds
         .validate()
         .map_err(ModelError::Inconsistent)?;
-    let assessment = assess(night)?;
-    let probability = uncertainty::no_start_probability_from(night, &assessment, policy.method)?;
+    let assessment = assess_in(night, ctx)?;
+    let probability = uncertainty::no_start_probability_in(night, &assessment, policy.method, ctx)?;
+    // The heater search's "without" and some actions are this very night.
+    let mut bare = night.clone();
+    bare.options.include_margin_path = false;
+    ctx.keep_outcome(
+        bare,
+        actions::Outcome {
+            assessment: Assessment {
+                margin_path: Vec::new(),
+                ..assessment.clone()
+            },
+            probability,
+        },
+    );
     let outlook = policy
         .thresholds
         .outlook(probability.probability, assessment.gel.level);
@@ -78,15 +103,16 @@ pub fn decide(night: &VehicleNight, policy: &DecisionPolicy) -> Result<Decision,
     } else {
         cause_of(probability.binding, &assessment.budget)
     };
-    let heater = actions::plan_block_heater(night, &action_policy)?;
+    let heater = actions::plan_block_heater_in(night, &action_policy, ctx)?;
     let mut list = Vec::new();
-    actions::recommend(
+    actions::recommend_in(
         night,
         &assessment,
         &probability,
         heater.as_ref(),
         &action_policy,
         &mut list,
+        ctx,
     )?;
     Ok(Decision {
         assessment,

@@ -21,7 +21,8 @@
 //!
 //! Deterministic: the same night and key always give the same probability.
 
-use super::{Assessment, FailureMode, VehicleNight, assess};
+use super::shared::NightContext;
+use super::{Assessment, FailureMode, VehicleNight, assess, assess_in};
 use crate::error::ModelError;
 use crate::fuel::{FuelBase, cold_flow_properties};
 
@@ -267,6 +268,17 @@ pub fn no_start_probability_from(
     centre: &Assessment,
     method: Method,
 ) -> Result<NoStartProbability, ModelError> {
+    no_start_probability_in(night, centre, method, &mut NightContext::new())
+}
+
+/// [`no_start_probability_from`], sharing work with the vehicle's other runs through `ctx` (the
+/// battery and fuel points reuse the central soak, the fuel points its compressions).
+pub fn no_start_probability_in(
+    night: &VehicleNight,
+    centre: &Assessment,
+    method: Method,
+    ctx: &mut NightContext,
+) -> Result<NoStartProbability, ModelError> {
     let u = uncertainties(night);
     let soc0 = centre.state_of_charge;
     let mut variance = [0.0_f64; 4];
@@ -275,8 +287,8 @@ pub fn no_start_probability_from(
         Method::SigmaPoints => {
             let spread = 3.0_f64.sqrt();
             for i in 0..DIMENSIONS {
-                let plus = assess(&perturbed(night, &u, &axis(i, spread), soc0)?)?;
-                let minus = assess(&perturbed(night, &u, &axis(i, -spread), soc0)?)?;
+                let plus = assess_in(&perturbed(night, &u, &axis(i, spread), soc0)?, ctx)?;
+                let minus = assess_in(&perturbed(night, &u, &axis(i, -spread), soc0)?, ctx)?;
                 for ((mode, axes), total) in FailureMode::ALL
                     .iter()
                     .zip(axis_variance.iter_mut())
@@ -301,7 +313,7 @@ pub fn no_start_probability_from(
                     health: rng.normal(),
                     fuel: rng.normal(),
                 };
-                let a = assess(&perturbed(night, &u, &p, soc0)?)?;
+                let a = assess_in(&perturbed(night, &u, &p, soc0)?, ctx)?;
                 for (k, mode) in FailureMode::ALL.iter().enumerate() {
                     let m = a.modes.get(*mode);
                     sum[k] += m;
@@ -370,6 +382,16 @@ pub fn no_start_probability_from(
         standard_error,
         model_runs: runs,
     })
+}
+
+/// True when the no-start probability around `centre` certainly exceeds `target`, from the
+/// central margins alone: every mode's spread is at least its model error, so Φ(−m/σ_model) is a
+/// lower bound of the mode's probability (equal to it below zero). Keep it a lower bound of
+/// [`no_start_probability_from`] whenever that changes (the shared-work grid test checks it).
+pub(crate) fn misses_target_for_sure(centre: &Assessment, target: f64) -> bool {
+    FailureMode::ALL
+        .iter()
+        .any(|&m| normal_cdf(-centre.modes.get(m) / m.model_sigma()) > target)
 }
 
 fn axis(i: usize, s: f64) -> Perturbation {
