@@ -185,7 +185,7 @@ fn score(pairs: &[(f64, bool)]) -> Score {
 
 /// Largest |mean predicted − observed rate| over five equal bins holding at least 40 nights.
 fn largest_bin_gap(pairs: &[(f64, bool)]) -> (f64, Vec<(f64, f64, usize)>) {
-    let mut bins = vec![(0.0, 0.0, 0usize); 5];
+    let mut bins = [(0.0, 0.0, 0usize); 5];
     for &(p, failed) in pairs {
         let b = ((p * 5.0) as usize).min(4);
         bins[b].0 += p;

@@ -75,7 +75,7 @@ fn fold(pool: Belief, prior: Belief, posterior: Belief, between_sd: f64) -> Beli
     let posterior_precision = 1.0 / (posterior.sd * posterior.sd);
     let message_precision = posterior_precision - prior_precision;
     // No information (or a floor that widened the posterior): the pool is unchanged.
-    if !(message_precision > 1e-12) || !message_precision.is_finite() {
+    if !message_precision.is_finite() || message_precision <= 1e-12 {
         return pool;
     }
     let message_mean =
