@@ -25,7 +25,7 @@ use startmargin_model::learning::{
 };
 
 /// Fixed random key of the simulation.
-const RANDOM_KEY: u64 = 0x5eed_f1ee_7000_0014;
+const RANDOM_KEY: u64 = 0x0d1e_05e1_7a11_0c0d;
 const VEHICLES_PER_ARCHETYPE: usize = 3;
 const MORNINGS: usize = 30;
 const HELD_OUT_NIGHTS: usize = 20;
