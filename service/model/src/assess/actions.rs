@@ -255,7 +255,7 @@ pub fn plan_block_heater_in(
             n.options.include_margin_path = false;
             n.block_heater_plan = Some((mid, dep_s));
             let centre = assess_in(&n, ctx)?;
-            if super::uncertainty::misses_target_for_sure(&centre, target) {
+            if super::uncertainty::misses_target_for_sure(&n, &centre, target) {
                 late = mid;
                 continue;
             }

@@ -331,7 +331,7 @@ pub fn no_start_probability_in(
     let mut mode_probabilities = [0.0; 4];
     let mut spreads = [0.0; 4];
     for (k, mode) in FailureMode::ALL.iter().enumerate() {
-        let sigma = mode.model_sigma();
+        let sigma = calibrated_model_sigma(night, *mode);
         spreads[k] = (sigma * sigma + variance[k]).sqrt();
         let m = centre.modes.get(*mode);
         // Below zero the vehicle fails at its central inputs: the inputs' spread may not pull the
@@ -349,7 +349,7 @@ pub fn no_start_probability_in(
     }
     let binding = FailureMode::ALL[b];
     let binding_margin = centre.modes.get(binding);
-    let sigma_b = binding.model_sigma();
+    let sigma_b = calibrated_model_sigma(night, binding);
     // The input that moves the binding mode most, if it moves it more than the model's own error.
     let dominant = match method {
         Method::SigmaPoints => {
@@ -385,13 +385,25 @@ pub fn no_start_probability_in(
 }
 
 /// True when the no-start probability around `centre` certainly exceeds `target`, from the
-/// central margins alone: every mode's spread is at least its model error, so Φ(−m/σ_model) is a
+/// central margins alone: every mode's spread is at least its (calibrated) model error, so Φ(−m/σ_model) is a
 /// lower bound of the mode's probability (equal to it below zero). Keep it a lower bound of
 /// [`no_start_probability_from`] whenever that changes (the shared-work grid test checks it).
-pub(crate) fn misses_target_for_sure(centre: &Assessment, target: f64) -> bool {
+pub(crate) fn misses_target_for_sure(night: &VehicleNight, centre: &Assessment, target: f64) -> bool {
     FailureMode::ALL
         .iter()
-        .any(|&m| normal_cdf(-centre.modes.get(m) / m.model_sigma()) > target)
+        .any(|&m| normal_cdf(-centre.modes.get(m) / calibrated_model_sigma(night, m)) > target)
+}
+
+/// A mode's model error under the night's calibration: the charge and cranking modes keep only
+/// the morning-to-morning part plus the calibration's remaining spread (`learning` module doc;
+/// exactly [`FailureMode::model_sigma`] uncalibrated).
+pub fn calibrated_model_sigma(night: &VehicleNight, mode: FailureMode) -> f64 {
+    let c = &night.options.calibration;
+    match mode {
+        FailureMode::ChargeTemperature => c.charge_model_sigma_k(),
+        FailureMode::CrankingSpeed => c.cranking_model_sigma_rpm(),
+        FailureMode::FrozenBattery | FailureMode::FuelFlow => mode.model_sigma(),
+    }
 }
 
 fn axis(i: usize, s: f64) -> Perturbation {
