@@ -18,8 +18,12 @@ start_test_postgres() {
   if [ -z "$bin" ]; then
     if [ "$(id -u)" = 0 ]; then
       echo "== installing postgresql (Debian package)"
+      # No default cluster: the package would otherwise create and start one on port 5432.
+      mkdir -p /etc/postgresql-common
+      echo "create_main_cluster = false" >/etc/postgresql-common/createcluster.conf
       apt-get update -qq
-      DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends postgresql >/dev/null
+      DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends \
+        -o Dpkg::Options::=--force-confold postgresql >/dev/null
       bin=$(pg_bin_dir)
     else
       echo "initdb not found: install the postgresql package (apt-get install postgresql)" >&2

@@ -40,9 +40,87 @@ async fn open() -> Option<Store> {
     )
 }
 
+/// Runs one suite function on the shared test database.
+macro_rules! suite_test {
+    ($name:ident) => {
+        #[tokio::test]
+        async fn $name() {
+            if let Some(store) = open().await {
+                store_suite::$name(store).await;
+            }
+        }
+    };
+}
+
+suite_test!(round_trip);
+suite_test!(idempotent_duplicates);
+suite_test!(conflicts);
+suite_test!(version_check);
+suite_test!(tenant_isolation);
+suite_test!(limits);
+suite_test!(hostile_values);
+
 #[tokio::test]
-async fn round_trip() {
-    if let Some(store) = open().await {
-        store_suite::round_trip(store).await;
+async fn concurrent_commits() {
+    if let Some(config) = config() {
+        let first = Store::open(&config).await.expect("first handle");
+        let second = Store::open(&config).await.expect("second handle");
+        store_suite::concurrent_commits(first, second).await;
+    }
+}
+
+/// A new empty database beside the test database, dropped when this is dropped.
+struct FreshDatabase {
+    admin: sqlx::PgPool,
+    name: String,
+    config: StoreConfig,
+}
+
+impl FreshDatabase {
+    async fn create(base: &StoreConfig, label: &str) -> Self {
+        let admin = sqlx::PgPool::connect(&base.url)
+            .await
+            .expect("admin connection");
+        let name = format!("startmargin_{label}_{}", std::process::id());
+        sqlx::raw_sql(&format!("DROP DATABASE IF EXISTS {name} WITH (FORCE)"))
+            .execute(&admin)
+            .await
+            .expect("drop a leftover");
+        sqlx::raw_sql(&format!("CREATE DATABASE {name}"))
+            .execute(&admin)
+            .await
+            .expect("create database");
+        let (head, tail) = base.url.rsplit_once('/').expect("a database in the URL");
+        let query = tail.find('?').map_or("", |i| &tail[i..]);
+        let config = StoreConfig {
+            url: format!("{head}/{name}{query}"),
+            ..base.clone()
+        };
+        Self {
+            admin,
+            name,
+            config,
+        }
+    }
+
+    async fn drop_now(self) {
+        sqlx::raw_sql(&format!(
+            "DROP DATABASE IF EXISTS {} WITH (FORCE)",
+            self.name
+        ))
+        .execute(&self.admin)
+        .await
+        .expect("drop database");
+    }
+}
+
+#[tokio::test]
+async fn migrations() {
+    if let Some(base) = config() {
+        let fresh = FreshDatabase::create(&base, "fresh").await;
+        let older = FreshDatabase::create(&base, "older").await;
+        store_suite::migrations(fresh.config.clone(), older.config.clone()).await;
+        fresh.drop_now().await;
+        older.drop_now().await;
     }
 }
