@@ -396,11 +396,14 @@ pub async fn limits(store: Store) {
     );
 }
 
+/// A change that spoils an attempt.
+type Spoil = Box<dyn Fn(&mut StoredAttempt)>;
+
 /// Values that must not be stored are refused before storage, and a batch with one bad item
 /// writes nothing.
 pub async fn hostile_values(store: Store) {
     let (t, _) = tenant_ids();
-    let cases: Vec<(&str, Box<dyn Fn(&mut StoredAttempt)>)> = vec![
+    let cases: Vec<(&str, Spoil)> = vec![
         ("cranking_s", Box::new(|a| a.cranking_s = f64::NAN)),
         ("cranking_s", Box::new(|a| a.cranking_s = -1.0)),
         ("air_c", Box::new(|a| a.air_c = f64::INFINITY)),
