@@ -20,6 +20,7 @@ const PROTO_FILES: &[&str] = &[
     "startmargin/v1/conditions.proto",
     "startmargin/v1/assessment.proto",
     "startmargin/v1/watch.proto",
+    "startmargin/v1/learning.proto",
     "startmargin/v1/service.proto",
     // Not imported by the API; compiled so that reflection clients can decode error details.
     "vendor/googleapis/google/rpc/error_details.proto",

@@ -4,7 +4,8 @@
 //! - Deadlines: every unary attempt carries `grpc-timeout` and is also bounded locally; a fleet
 //!   stream gets its own (optional) deadline.
 //! - Retries: only the idempotent unary calls (`AssessVehicle`, `DescribeModel`: deterministic, no
-//!   side effects), only on `UNAVAILABLE`, with jittered exponential backoff ([`Backoff`]).
+//!   side effects; `ReportStartAttempts`: recorded once per vehicle and attempt time, so a resend
+//!   is a no-op; the calibration read-outs), only on `UNAVAILABLE`, with jittered exponential backoff ([`Backoff`]).
 //!   Streams are never retried: the caller owns their items.
 //! - Balancing: one channel per endpoint, picked round-robin per call; a retry goes to the next
 //!   endpoint, so a dead endpoint costs one backoff, not the call. (tonic's `balance_list` waits
@@ -149,8 +150,13 @@ impl Client {
         FleetResults::new(FleetStream::Opening(Box::pin(open)))
     }
 
+    /// The deadline of streams, when one is set.
+    pub(crate) fn stream_timeout(&self) -> Option<Duration> {
+        self.stream_timeout
+    }
+
     /// The next channel, round-robin.
-    fn pick(&self) -> StartMarginServiceClient<Channel> {
+    pub(crate) fn pick(&self) -> StartMarginServiceClient<Channel> {
         self.pick_from(self.next.fetch_add(1, Ordering::Relaxed), 0)
     }
 
@@ -161,7 +167,11 @@ impl Client {
     }
 
     /// One idempotent unary call with deadline and retries on `UNAVAILABLE`.
-    async fn unary<Req, Resp, F, Fut>(&self, request: Req, call: F) -> Result<Resp, Error>
+    pub(crate) async fn unary<Req, Resp, F, Fut>(
+        &self,
+        request: Req,
+        call: F,
+    ) -> Result<Resp, Error>
     where
         Req: Clone,
         F: Fn(StartMarginServiceClient<Channel>, tonic::Request<Req>) -> Fut,
@@ -200,7 +210,7 @@ fn deadline_exceeded(t: Duration) -> Error {
 
 /// tonic reports its own client-side deadline as `CANCELLED` "Timeout expired"; callers see
 /// `DeadlineExceeded` either way.
-fn map_status(s: tonic::Status) -> Error {
+pub(crate) fn map_status(s: tonic::Status) -> Error {
     if s.code() == Code::Cancelled && s.message() == "Timeout expired" {
         Error::DeadlineExceeded(s.message().to_string())
     } else {

@@ -8,7 +8,10 @@
 //!   idempotent unary calls, and round-robin balancing over several endpoints;
 //! - one [`Error`] type whose `InvalidArgument` carries the server's field violations, for calls
 //!   and for each item of a fleet stream alike;
-//! - SAE J1939 adapters ([`j1939`]) from raw parameter values to the API's telemetry fields.
+//! - SAE J1939 adapters ([`j1939`]) from raw parameter values to the API's telemetry fields;
+//! - observed start attempts in and the calibration they teach out
+//!   ([`Client::report_start_attempts`], [`Client::vehicle_calibration`],
+//!   [`Client::fleet_reliability`]).
 //!
 //! The generated messages are re-exported as [`api`] for everything the builders do not cover
 //! (reading an assessment's heat budget, gel outlook, actions…).
@@ -40,6 +43,7 @@ mod error;
 mod fleet;
 mod forecast;
 pub mod j1939;
+mod learning;
 mod night;
 mod profile;
 mod retry;
@@ -60,6 +64,7 @@ pub use client::{Client, ClientBuilder};
 pub use error::Error;
 pub use fleet::{FleetItem, FleetOutcome, FleetProgress, FleetResult, FleetResults, FleetRun};
 pub use forecast::{Forecast, ForecastBuilder};
+pub use learning::MAX_ATTEMPTS_PER_REPORT;
 pub use night::VehicleNight;
 pub use profile::{VehicleProfile, VehicleProfileBuilder};
 pub use retry::Backoff;

@@ -1317,6 +1317,7 @@ pub fn assessment_to_pb(
     let c = kelvin_to_celsius;
     let gel = &a.gel;
     pb::VehicleAssessment {
+        calibration: None,
         vehicle_id,
         model_version: assess::MODEL_VERSION.to_string(),
         departure_time: Some(timestamp(night.departure_s)),

@@ -200,6 +200,67 @@ impl srv::StartMarginService for Mock {
             ..Default::default()
         }))
     }
+    /// Records every attempt; its `index` is its place in the request.
+    async fn report_start_attempts(
+        &self,
+        request: Request<api::ReportStartAttemptsRequest>,
+    ) -> Result<Response<api::ReportStartAttemptsResponse>, Status> {
+        self.gate(&request).await?;
+        let results = request
+            .into_inner()
+            .attempts
+            .into_iter()
+            .enumerate()
+            .map(|(i, a)| api::AttemptResult {
+                index: i as u32,
+                outcome: Some(api::attempt_result::Outcome::Recorded(
+                    api::RecordedAttempt {
+                        vehicle_id: a.vehicle.map(|v| v.vehicle_id).unwrap_or_default(),
+                        attempted_at: a.attempted_at,
+                        ..Default::default()
+                    },
+                )),
+            })
+            .collect();
+        Ok(Response::new(api::ReportStartAttemptsResponse { results }))
+    }
+
+    /// Counts the attempts of the stream.
+    async fn stream_start_attempts(
+        &self,
+        request: Request<Streaming<api::StreamStartAttemptsRequest>>,
+    ) -> Result<Response<api::StreamStartAttemptsResponse>, Status> {
+        self.gate(&request).await?;
+        let mut input = request.into_inner();
+        let mut recorded_count = 0;
+        while let Some(item) = input.next().await {
+            item?;
+            recorded_count += 1;
+        }
+        Ok(Response::new(api::StreamStartAttemptsResponse {
+            recorded_count,
+            ..Default::default()
+        }))
+    }
+
+    async fn get_vehicle_calibration(
+        &self,
+        request: Request<api::GetVehicleCalibrationRequest>,
+    ) -> Result<Response<api::GetVehicleCalibrationResponse>, Status> {
+        self.gate(&request).await?;
+        Ok(Response::new(api::GetVehicleCalibrationResponse {
+            vehicle_id: request.into_inner().vehicle_id,
+            ..Default::default()
+        }))
+    }
+
+    async fn get_fleet_reliability(
+        &self,
+        request: Request<api::GetFleetReliabilityRequest>,
+    ) -> Result<Response<api::GetFleetReliabilityResponse>, Status> {
+        self.gate(&request).await?;
+        Ok(Response::new(api::GetFleetReliabilityResponse::default()))
+    }
 }
 
 /// The per-item `google.rpc.Status` the real server puts in a fleet result: the call status's
