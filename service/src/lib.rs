@@ -9,6 +9,7 @@
 //! - [`convert`]: validation and conversion between the API's messages and the model.
 //! - [`error`]: the API errors and their one mapping to gRPC status codes.
 //! - [`local_time`]: the depot time zone, and times for people in it with their offset.
+//! - [`store`]: start history and calibration state in SQLite (default) or PostgreSQL.
 //!
 //! The service holds no physics: it validates, converts, runs the model off the async runtime
 //! and transports the answer.
@@ -24,6 +25,7 @@ pub mod local_time;
 pub mod metrics;
 pub mod metrics_http;
 pub mod server;
+pub mod store;
 pub mod tenant;
 pub mod tls;
 pub mod watch;
