@@ -2,7 +2,9 @@
 //!
 //! A small, deliberate set of codes: `INVALID_ARGUMENT` with `google.rpc.BadRequest` field
 //! violations for bad input, `FAILED_PRECONDITION` when the forecast does not cover the departure,
-//! `RESOURCE_EXHAUSTED` under overload, `UNAVAILABLE` while draining, `INTERNAL` for defects.
+//! `RESOURCE_EXHAUSTED` under overload, `UNAVAILABLE` while draining (or when the store is out of
+//! reach), `ABORTED` when another replica's concurrent update of the same vehicles won (retry),
+//! `INTERNAL` for defects.
 //! Never `UNKNOWN`.
 
 use startmargin_model::ModelError;
@@ -30,9 +32,12 @@ pub enum ApiError {
     /// Too much work in flight; try again later.
     #[error("{0}")]
     ResourceExhausted(String),
-    /// The server is draining or not ready.
+    /// The server is draining or not ready, or its store cannot be reached.
     #[error("{0}")]
     Unavailable(String),
+    /// A concurrent update won (another replica learned from the same vehicles); retry.
+    #[error("{0}")]
+    Aborted(String),
     /// A defect: the model failed on input the API layer accepted.
     #[error("internal error: {0}")]
     Internal(String),
@@ -79,6 +84,7 @@ impl ApiError {
             Self::FailedPrecondition(_) => Code::FailedPrecondition,
             Self::ResourceExhausted(_) => Code::ResourceExhausted,
             Self::Unavailable(_) => Code::Unavailable,
+            Self::Aborted(_) => Code::Aborted,
             Self::Internal(_) => Code::Internal,
         }
     }
