@@ -15,6 +15,9 @@ use crate::convert::Policy;
 /// Prefix of the environment variables that override the file (`STARTMARGIN_LISTEN`, …).
 pub const ENV_PREFIX: &str = "STARTMARGIN_";
 
+/// What follows [`ENV_PREFIX`] in the variables of the `[store]` section.
+const STORE_ENV_INFIX: &str = "STORE_";
+
 /// Default listen address: loopback only, so an unconfigured server is not exposed.
 pub const DEFAULT_LISTEN: &str = "127.0.0.1:50051";
 
@@ -129,6 +132,9 @@ pub struct Config {
     pub max_connection_age_s: f64,
     /// The `[streams]` section: fair sharing, per-tenant quotas, watch idle timeout.
     pub streams: crate::watch::settings::StreamSettings,
+    /// The `[store]` section: the database of start history and calibrations. Its keys are
+    /// also set as `STARTMARGIN_STORE_<KEY>` (e.g. `STARTMARGIN_STORE_URL`).
+    pub store: crate::store::StoreConfig,
 }
 
 impl Default for Config {
@@ -171,6 +177,7 @@ impl Default for Config {
             max_open_streams: 1024,
             max_connection_age_s: 0.0,
             streams: Default::default(),
+            store: Default::default(),
         }
     }
 }
@@ -247,7 +254,15 @@ impl Config {
         if let Some(path) = file {
             figment = figment.merge(Toml::file_exact(path));
         }
-        figment.merge(Env::prefixed(ENV_PREFIX))
+        figment.merge(Env::prefixed(ENV_PREFIX).map(|key| {
+            // `STARTMARGIN_STORE_URL` → `store.url`: the [store] keys as flat variables.
+            match key.as_str().get(..STORE_ENV_INFIX.len()) {
+                Some(head) if head.eq_ignore_ascii_case(STORE_ENV_INFIX) => {
+                    format!("store.{}", &key.as_str()[STORE_ENV_INFIX.len()..]).into()
+                }
+                _ => key.into(),
+            }
+        }))
     }
 
     /// Loads the layered configuration and validates it.
@@ -477,6 +492,7 @@ impl Config {
             problems.push("max_open_streams must be at least 1".to_string());
         }
         problems.extend(self.streams.problems());
+        problems.extend(self.store.problems());
         let age = self.max_connection_age_s;
         if !age.is_finite() || !(0.0..=604_800.0).contains(&age) {
             problems.push(format!(

@@ -2,12 +2,13 @@
 //!
 //! A small, deliberate set of codes: `INVALID_ARGUMENT` with `google.rpc.BadRequest` field
 //! violations for bad input, `FAILED_PRECONDITION` when the forecast does not cover the departure,
-//! `RESOURCE_EXHAUSTED` under overload, `UNAVAILABLE` while draining (or when the store is out of
-//! reach), `ABORTED` when another replica's concurrent update of the same vehicles won (retry),
-//! `INTERNAL` for defects.
-//! Never `UNKNOWN`.
+//! `RESOURCE_EXHAUSTED` under overload, `UNAVAILABLE` while draining or when the store cannot be
+//! reached, `ABORTED` when a stored calibration changed under a commit (reload and retry),
+//! `INTERNAL` for defects. Never `UNKNOWN`.
 
 use startmargin_model::ModelError;
+
+use crate::store::StoreError;
 use tonic::Code;
 use tonic_types::{ErrorDetails, StatusExt};
 
@@ -32,10 +33,10 @@ pub enum ApiError {
     /// Too much work in flight; try again later.
     #[error("{0}")]
     ResourceExhausted(String),
-    /// The server is draining or not ready, or its store cannot be reached.
+    /// The server is draining or not ready, or the store cannot be reached.
     #[error("{0}")]
     Unavailable(String),
-    /// A concurrent update won (another replica learned from the same vehicles); retry.
+    /// A concurrent writer changed what this call read; retrying the call is safe.
     #[error("{0}")]
     Aborted(String),
     /// A defect: the model failed on input the API layer accepted.
@@ -87,6 +88,30 @@ impl ApiError {
             Self::Aborted(_) => Code::Aborted,
             Self::Internal(_) => Code::Internal,
         }
+    }
+}
+
+impl From<StoreError> for ApiError {
+    /// The store's errors as API errors. Store messages hold no URL or credential; internal
+    /// ones are still reduced to a fixed text, with the detail left to the server's log.
+    fn from(e: StoreError) -> Self {
+        match e {
+            StoreError::InvalidArgument { field, reason } => Self::field(field, reason),
+            StoreError::Concurrent(what) => {
+                Self::Aborted(format!("{what}; nothing was written, retry the call"))
+            }
+            StoreError::Unavailable(why) => Self::Unavailable(format!("store unavailable: {why}")),
+            StoreError::Config(_) | StoreError::Schema(_) | StoreError::Internal(_) => {
+                tracing::error!(error = %e, "store error");
+                Self::Internal("the store failed; see the server log".to_string())
+            }
+        }
+    }
+}
+
+impl From<StoreError> for tonic::Status {
+    fn from(e: StoreError) -> Self {
+        ApiError::from(e).into()
     }
 }
 
@@ -150,6 +175,35 @@ mod tests {
         assert_eq!(s.details.len(), 1);
         let s = to_rpc_status(ApiError::FailedPrecondition("short".into()));
         assert_eq!(s.code, Code::FailedPrecondition as i32);
+    }
+
+    #[test]
+    fn store_errors_map_to_their_codes_without_detail() {
+        let code = |e: StoreError| tonic::Status::from(e).code();
+        assert_eq!(
+            code(StoreError::Unavailable("connection lost".into())),
+            Code::Unavailable
+        );
+        assert_eq!(
+            code(StoreError::Concurrent("changed".into())),
+            Code::Aborted
+        );
+        let s: tonic::Status = StoreError::InvalidArgument {
+            field: "tenant".into(),
+            reason: "too long".into(),
+        }
+        .into();
+        assert_eq!(s.code(), Code::InvalidArgument);
+        let br = s
+            .get_error_details()
+            .bad_request()
+            .cloned()
+            .expect("BadRequest");
+        assert_eq!(br.field_violations[0].field, "tenant");
+        let s: tonic::Status =
+            StoreError::Internal("database error XX000: postgres://u:pw@h/db".into()).into();
+        assert_eq!(s.code(), Code::Internal);
+        assert!(!s.message().contains("pw"), "{}", s.message());
     }
 
     #[test]

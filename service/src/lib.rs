@@ -8,6 +8,7 @@
 //! - [`api`]: the `startmargin.v1.StartMarginService` implementation (transport only).
 //! - [`convert`]: validation and conversion between the API's messages and the model.
 //! - [`error`]: the API errors and their one mapping to gRPC status codes.
+//! - [`store`]: start history and calibration state in SQLite (default) or PostgreSQL.
 //!
 //! The service holds no physics: it validates, converts, runs the model off the async runtime
 //! and transports the answer.
@@ -22,6 +23,7 @@ pub mod error;
 pub mod metrics;
 pub mod metrics_http;
 pub mod server;
+pub mod store;
 pub mod tenant;
 pub mod tls;
 pub mod watch;
