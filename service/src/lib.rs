@@ -20,6 +20,7 @@ pub mod codec;
 pub mod config;
 pub mod convert;
 pub mod error;
+pub mod learning;
 pub mod metrics;
 pub mod metrics_http;
 pub mod server;
