@@ -47,6 +47,7 @@ mod learning;
 mod night;
 mod profile;
 mod retry;
+mod start_detector;
 mod telemetry;
 pub mod time;
 mod validate;
@@ -54,6 +55,11 @@ mod watch;
 
 /// The generated API messages, client and server of `startmargin.v1`.
 pub use startmargin_proto::v1 as api;
+
+pub use start_detector::{
+    DetectedAttempt, DetectedOutcome, DetectorConfig, DetectorReport, EngineSample,
+    StartDetectorError, detect_start_attempts,
+};
 
 pub use api::{
     BiodieselFeedstock, CombustionSystem, DelayCorrelation, FailureMode, FilterMount, FuelGrade,

@@ -699,6 +699,7 @@ fn options_from_pb(
     AssessOptions {
         delay_correlation,
         include_margin_path: o.include_margin_path,
+        ..AssessOptions::default()
     }
 }
 

@@ -33,6 +33,7 @@ use crate::fuel::{self, ColdFlowProperties, FuelDescription};
 use crate::gel_risk::{self, FuelTemperatureSample, GelOutlook};
 use crate::ignition::{self, DelayCorrelation};
 use crate::induction;
+use crate::learning::VehicleCalibration;
 use crate::oil::{self, SaeGrade};
 use crate::soak::{self, FilterMount, Forecast, ForecastHour, HeaterSchedule, ThermalNode};
 
@@ -126,6 +127,8 @@ pub struct AssessOptions {
     pub delay_correlation: DelayCorrelation,
     /// Also compute the margin for a departure at each forecast step.
     pub include_margin_path: bool,
+    /// What the vehicle's observed starts taught (`learning`); the default is the identity.
+    pub calibration: VehicleCalibration,
 }
 
 /// Everything the model needs for one vehicle and one departure.
@@ -175,6 +178,8 @@ pub struct HeatBudget {
     pub intake_heater_gain_k: f64,
     /// Glow plug gain, K.
     pub glow_plug_gain_k: f64,
+    /// The vehicle's calibrated thermal offset (posterior mean), K; 0 uncalibrated.
+    pub calibration_offset_k: f64,
     /// Predicted igniting-charge temperature at TDC, K.
     pub predicted_end_t_k: f64,
     /// Required temperature, K.
@@ -413,7 +418,12 @@ fn build_nodes(night: &VehicleNight, fuel_level: f64) -> Nodes {
     let mut engine = soak::engine_node(e.geometry.displacement_m3());
     // The caller's heat capacity keeps the node's conductance: τ scales with it.
     engine.heat_capacity_j_per_k = e.heat_capacity_j_per_k;
-    if let Some(tau_s) = e.cooldown_time_constant_s {
+    // The caller's fitted constant first, else the one calibrated from key-off readings.
+    let calibrated_tau_s = night.options.calibration.cooldown_time_constant_s;
+    if let Some(tau_s) = e
+        .cooldown_time_constant_s
+        .or(calibrated_tau_s.map(|b| b.mean))
+    {
         // A fitted time constant is a still-air figure from the vehicle's own log.
         engine = engine.with_time_constant(tau_s, 0.0);
     }
@@ -613,6 +623,7 @@ fn validate(night: &VehicleNight) -> Result<(), ModelError> {
             "0.4–8.2 MPa absolute",
         )?;
     }
+    night.options.calibration.validate()?;
     for s in &night.forecast.air_spread_k {
         check_range("air_spread_k", *s, 0.0, 30.0, "0–30 K")?;
     }
@@ -802,7 +813,10 @@ fn start_point(
         oil: night.oil,
         oil_t_k: engine_t_k,
     };
-    let result = cranking::cranking_speed(&cranking_input)?;
+    let mut result = cranking::cranking_speed(&cranking_input)?;
+    // Calibrated battery and starter health: the observed-to-modelled speed ratio (exactly 1
+    // uncalibrated).
+    result.crank_rpm *= night.options.calibration.cranking_log_factor.mean.exp();
     let cranking = CrankingSummary {
         result,
         min_start_speed_rpm: engine.min_start_speed_rpm,
@@ -957,9 +971,11 @@ fn heat_budget(
     };
     let wall_loss_k = ideal_end_t_k - walls_t_k;
     let leakage_loss_k = walls_t_k - full_t_k;
+    let calibration_offset_k = night.options.calibration.thermal_offset_k.mean;
     let predicted_end_t_k = ideal_end_t_k - wall_loss_k - leakage_loss_k - evaporation_loss_k
         + intake_heater_gain_k
-        + glow_plug_gain_k;
+        + glow_plug_gain_k
+        + calibration_offset_k;
     let window_s = ignition::crank_window_s(engine.ignition_window_deg, crank_rpm);
     let required_t_k = ignition::required_temperature_k(
         night.options.delay_correlation,
@@ -978,6 +994,7 @@ fn heat_budget(
         evaporation_loss_k,
         intake_heater_gain_k,
         glow_plug_gain_k,
+        calibration_offset_k,
         predicted_end_t_k,
         required_t_k,
         end_p_pa: tdc.tdc_p_pa,

@@ -45,6 +45,9 @@ pub mod archetypes;
 pub mod assess;
 pub mod plug_in_plan;
 
+// Calibration from the fleet's observed starts.
+pub mod learning;
+
 pub mod constants;
 pub mod error;
 

@@ -319,7 +319,7 @@ pub fn no_start_probability_from(
     let mut mode_probabilities = [0.0; 4];
     let mut spreads = [0.0; 4];
     for (k, mode) in FailureMode::ALL.iter().enumerate() {
-        let sigma = mode.model_sigma();
+        let sigma = calibrated_model_sigma(night, *mode);
         spreads[k] = (sigma * sigma + variance[k]).sqrt();
         let m = centre.modes.get(*mode);
         // Below zero the vehicle fails at its central inputs: the inputs' spread may not pull the
@@ -337,7 +337,7 @@ pub fn no_start_probability_from(
     }
     let binding = FailureMode::ALL[b];
     let binding_margin = centre.modes.get(binding);
-    let sigma_b = binding.model_sigma();
+    let sigma_b = calibrated_model_sigma(night, binding);
     // The input that moves the binding mode most, if it moves it more than the model's own error.
     let dominant = match method {
         Method::SigmaPoints => {
@@ -370,6 +370,18 @@ pub fn no_start_probability_from(
         standard_error,
         model_runs: runs,
     })
+}
+
+/// A mode's model error under the night's calibration: the charge and cranking modes keep only
+/// the morning-to-morning part plus the calibration's remaining spread (`learning` module doc;
+/// exactly [`FailureMode::model_sigma`] uncalibrated).
+pub fn calibrated_model_sigma(night: &VehicleNight, mode: FailureMode) -> f64 {
+    let c = &night.options.calibration;
+    match mode {
+        FailureMode::ChargeTemperature => c.charge_model_sigma_k(),
+        FailureMode::CrankingSpeed => c.cranking_model_sigma_rpm(),
+        FailureMode::FrozenBattery | FailureMode::FuelFlow => mode.model_sigma(),
+    }
 }
 
 fn axis(i: usize, s: f64) -> Perturbation {
