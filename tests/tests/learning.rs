@@ -61,14 +61,15 @@ async fn failures_teach_the_vehicle_its_pool_and_later_assessments() {
         .into_inner()
         .results;
     assert_eq!(results.len(), 5);
-    let first = recorded(&results[0]);
+    // Attempts are learned in time order: the oldest (five days ago, index 4) first.
+    let first = recorded(&results[4]);
     assert!(!first.duplicate);
     assert!(
-        first.predicted_no_start_pct < 20.0,
+        first.predicted_no_start_pct < 50.0,
         "the defaults expected a start: {:.1} %",
         first.predicted_no_start_pct
     );
-    let last = recorded(&results[4]);
+    let last = recorded(&results[0]);
     let cal = last.calibration.clone().expect("a calibration");
     assert_eq!(cal.observations, 5);
     let offset = cal.thermal_offset_k.expect("offset");

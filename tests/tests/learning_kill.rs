@@ -10,7 +10,7 @@ use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
 use std::time::Duration;
 
-use learning_common::attempt;
+use learning_common::{DAY_S, attempt_at, now_s};
 use startmargin_proto::v1 as pb;
 use startmargin_proto::v1::attempt_result::Outcome;
 use startmargin_proto::v1::start_margin_service_client::StartMarginServiceClient;
@@ -66,10 +66,17 @@ async fn client(port: u16) -> StartMarginServiceClient<tonic::transport::Channel
     StartMarginServiceClient::new(channel)
 }
 
-/// Batch `b`: 40 attempts of 40 vehicles on day `b + 1`.
-fn batch(b: i64) -> Vec<pb::StartAttempt> {
+/// Batch `b`: 40 attempts of 40 vehicles on day `b` after `start_s`.
+fn batch(start_s: i64, b: i64) -> Vec<pb::StartAttempt> {
     (0..40)
-        .map(|v| attempt(&format!("K-{v}"), b + 1, -6.0, pb::AttemptOutcome::Fired))
+        .map(|v| {
+            attempt_at(
+                &format!("K-{v}"),
+                start_s + b * DAY_S,
+                -6.0,
+                pb::AttemptOutcome::Fired,
+            )
+        })
         .collect()
 }
 
@@ -82,6 +89,8 @@ async fn a_killed_server_keeps_every_acknowledged_attempt() {
     let store = dir.join("starts.db");
     let port = free_port();
     let server = Process::start(&binary, port, &store).await;
+    // Thirty mornings ending yesterday, the same instants on every resend.
+    let start_s = now_s() - 31 * DAY_S;
 
     // Report batches one after another from a task; kill the server once a few are acknowledged.
     let (acked_tx, mut acked_rx) = tokio::sync::mpsc::unbounded_channel::<i64>();
@@ -89,7 +98,7 @@ async fn a_killed_server_keeps_every_acknowledged_attempt() {
     let reporter = tokio::spawn(async move {
         for b in 0..30 {
             match c
-                .report_start_attempts(pb::ReportStartAttemptsRequest { attempts: batch(b) })
+                .report_start_attempts(pb::ReportStartAttemptsRequest { attempts: batch(start_s, b) })
                 .await
             {
                 Ok(r) => {
@@ -119,7 +128,7 @@ async fn a_killed_server_keeps_every_acknowledged_attempt() {
     let mut c = client(port).await;
     for &b in &acked {
         let results = c
-            .report_start_attempts(pb::ReportStartAttemptsRequest { attempts: batch(b) })
+            .report_start_attempts(pb::ReportStartAttemptsRequest { attempts: batch(start_s, b) })
             .await
             .expect("resent")
             .into_inner()

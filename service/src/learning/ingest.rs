@@ -72,7 +72,7 @@ pub fn learn(
                 .pools
                 .get(&a.archetype_id)
                 .copied()
-                .unwrap_or_else(VehicleCalibration::uncalibrated);
+                .unwrap_or_else(learning::uncalibrated_pool);
             let pool_after = learning::update_pool(&pool, &calibrated);
             states
                 .vehicles

@@ -35,7 +35,7 @@ use crate::store::Store;
 use self::book::{CalibrationBook, Looked};
 use self::ingest::{Learned, States};
 
-pub use self::storage::StoredRecord;
+use self::storage::StoredRecord;
 
 /// Most attempts in one ReportStartAttempts call.
 pub const MAX_ATTEMPTS_PER_REPORT: usize = 1000;
@@ -44,7 +44,7 @@ pub const STREAM_BATCH: usize = 256;
 /// Refusals a StreamStartAttempts summary lists.
 pub const MAX_LISTED_REFUSALS: usize = 100;
 /// Most attempts a fleet reliability read-out scores (the newest ones).
-pub const MAX_SCORED_ATTEMPTS: u32 = 200_000;
+pub const MAX_SCORED_ATTEMPTS: u32 = crate::store::MAX_FLEET_ATTEMPTS as u32;
 
 /// Limits of the learning RPCs, from the configuration.
 #[derive(Debug, Clone, Copy)]

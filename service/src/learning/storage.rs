@@ -17,7 +17,7 @@ use crate::store::{
 };
 
 /// The store's key of an attempt: vehicle and attempt time in whole milliseconds.
-pub fn key_of(c: &ConvertedAttempt) -> AttemptKey {
+pub(super) fn key_of(c: &ConvertedAttempt) -> AttemptKey {
     AttemptKey {
         vehicle_id: c.vehicle_id.clone(),
         attempted_at_ms: (c.attempted_at_s * 1000.0).round() as i64,
@@ -25,7 +25,7 @@ pub fn key_of(c: &ConvertedAttempt) -> AttemptKey {
 }
 
 /// Which of `keys` are stored already.
-pub async fn known(
+pub(super) async fn known(
     store: &Store,
     tenant: &str,
     keys: &[AttemptKey],
@@ -38,9 +38,9 @@ pub async fn known(
 
 /// The states a batch starts from, with the stored versions to check at commit.
 #[derive(Debug, Clone, Default)]
-pub struct Loaded {
+pub(super) struct Loaded {
     /// Vehicles and pools as stored.
-    pub states: States,
+    pub(super) states: States,
     /// Stored version of each vehicle calibration.
     pub vehicle_versions: HashMap<String, i64>,
     /// Stored version of each archetype pool.
@@ -48,7 +48,7 @@ pub struct Loaded {
 }
 
 /// Loads the stored calibrations of the batch's vehicles and archetypes.
-pub async fn load_for<'a>(
+pub(super) async fn load_for<'a>(
     store: &Store,
     tenant: &str,
     attempts: impl Iterator<Item = &'a ConvertedAttempt>,
@@ -87,14 +87,14 @@ fn loaded(
 }
 
 /// Every calibration of a tenant (for the in-memory book).
-pub async fn load_states(store: &Store, tenant: &str) -> Result<States, ApiError> {
+pub(super) async fn load_states(store: &Store, tenant: &str) -> Result<States, ApiError> {
     let (v, a) = store.tenant_calibrations(tenant).await?;
     Ok(loaded(v, a).states)
 }
 
 /// Why a commit did not happen.
 #[derive(Debug)]
-pub enum CommitError {
+pub(super) enum CommitError {
     /// Another writer changed one of the batch's calibrations since it was loaded.
     Concurrent,
     /// The store failed or refused.
@@ -102,7 +102,7 @@ pub enum CommitError {
 }
 
 /// Commits the learned attempts and the states they leave, in one transaction.
-pub async fn commit(
+pub(super) async fn commit(
     store: &Store,
     tenant: &str,
     new: &[(usize, ConvertedAttempt)],
@@ -179,7 +179,7 @@ fn stored_attempt(c: &ConvertedAttempt, l: &Learned, received_at_ms: i64) -> Sto
 }
 
 /// A stored calibration as the model's.
-pub fn from_stored(c: &StoredCalibration) -> VehicleCalibration {
+pub(super) fn from_stored(c: &StoredCalibration) -> VehicleCalibration {
     VehicleCalibration {
         thermal_offset_k: Belief {
             mean: c.thermal_offset_mean_k,
@@ -213,7 +213,7 @@ fn to_stored(c: &VehicleCalibration, now_ms: i64) -> StoredCalibration {
 
 /// One stored attempt as the learning read-outs use it.
 #[derive(Debug, Clone)]
-pub struct StoredRecord {
+pub(super) struct StoredRecord {
     /// The stored row.
     pub row: StoredAttempt,
     /// The vehicle's archetype id.
@@ -238,12 +238,12 @@ impl StoredRecord {
     }
 
     /// The engine did not fire.
-    pub fn failed(&self) -> bool {
+    pub(super) fn failed(&self) -> bool {
         self.row.outcome == StoredOutcome::DidNotFire
     }
 
     /// As the API message.
-    pub fn to_pb(&self) -> pb::StoredStartAttempt {
+    pub(super) fn to_pb(&self) -> pb::StoredStartAttempt {
         let r = &self.row;
         pb::StoredStartAttempt {
             attempted_at: Some(timestamp(r.key.attempted_at_ms as f64 / 1000.0)),
@@ -267,7 +267,7 @@ impl StoredRecord {
 }
 
 /// A vehicle's latest attempts, newest first.
-pub async fn recent(
+pub(super) async fn recent(
     store: &Store,
     tenant: &str,
     vehicle_id: &str,
@@ -280,7 +280,7 @@ pub async fn recent(
 }
 
 /// The tenant's attempts since `since_s`, newest first, at most `limit`.
-pub async fn fleet(
+pub(super) async fn fleet(
     store: &Store,
     tenant: &str,
     since_s: f64,

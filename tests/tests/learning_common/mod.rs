@@ -1,11 +1,14 @@
 //! Shared helpers of the start-attempt tests: a heavy truck profile and observed attempts.
+#![allow(dead_code, unreachable_pub)] // each test file uses a part
 
 use std::time::{SystemTime, UNIX_EPOCH};
 
 use startmargin_proto::v1 as pb;
 
+/// Seconds in a day.
 pub const DAY_S: i64 = 86_400;
 
+/// The clock, s since 1970.
 pub fn now_s() -> i64 {
     SystemTime::now()
         .duration_since(UNIX_EPOCH)
@@ -50,10 +53,20 @@ pub fn attempt(
     air_c: f64,
     outcome: pb::AttemptOutcome,
 ) -> pb::StartAttempt {
+    attempt_at(vehicle_id, now_s() - days_ago * DAY_S, air_c, outcome)
+}
+
+/// An attempt at `at_s` (s since 1970) at `air_c`, cold-soaked, with `outcome`.
+pub fn attempt_at(
+    vehicle_id: &str,
+    at_s: i64,
+    air_c: f64,
+    outcome: pb::AttemptOutcome,
+) -> pb::StartAttempt {
     pb::StartAttempt {
         vehicle: Some(truck(vehicle_id)),
         attempted_at: Some(prost_types::Timestamp {
-            seconds: now_s() - days_ago * DAY_S,
+            seconds: at_s,
             nanos: 0,
         }),
         outcome: outcome as i32,
