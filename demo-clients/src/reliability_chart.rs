@@ -30,8 +30,20 @@ pub fn reliability_chart(title: &str, subtitle: &str, curves: &[Curve<'_>]) -> S
         let (x, y) = (xs.map(t), ys.map(t));
         svg.line((x0, y), (x1, y), Stroke::solid("#e4e4e4", 1.0));
         svg.line((x, y0), (x, y1), Stroke::solid("#eeeeee", 1.0));
-        svg.text((x0 - 8.0, y + 4.0), &format!("{t:.0}"), 11.0, Anchor::End, "#444");
-        svg.text((x, y1 + 18.0), &format!("{t:.0}"), 11.0, Anchor::Middle, "#444");
+        svg.text(
+            (x0 - 8.0, y + 4.0),
+            &format!("{t:.0}"),
+            11.0,
+            Anchor::End,
+            "#444",
+        );
+        svg.text(
+            (x, y1 + 18.0),
+            &format!("{t:.0}"),
+            11.0,
+            Anchor::Middle,
+            "#444",
+        );
     }
     svg.rect(
         (x0, y0),
@@ -46,7 +58,11 @@ pub fn reliability_chart(title: &str, subtitle: &str, curves: &[Curve<'_>]) -> S
         Anchor::Middle,
         "#222",
     );
-    svg.vertical_text((x0 - 46.0, (y0 + y1) / 2.0), "observed no-start rate, %", 13.0);
+    svg.vertical_text(
+        (x0 - 46.0, (y0 + y1) / 2.0),
+        "observed no-start rate, %",
+        13.0,
+    );
     // Perfect reliability.
     svg.line(
         (xs.map(0.0), ys.map(0.0)),
@@ -71,7 +87,12 @@ pub fn reliability_chart(title: &str, subtitle: &str, curves: &[Curve<'_>]) -> S
             .bins
             .iter()
             .filter(|b| b.attempt_count > 0)
-            .map(|b| (xs.map(b.mean_predicted_pct), ys.map(b.observed_no_start_pct)))
+            .map(|b| {
+                (
+                    xs.map(b.mean_predicted_pct),
+                    ys.map(b.observed_no_start_pct),
+                )
+            })
             .collect();
         svg.polyline(&points, st.stroke(2.0));
         for b in c.score.bins.iter().filter(|b| b.attempt_count > 0) {
@@ -80,7 +101,10 @@ pub fn reliability_chart(title: &str, subtitle: &str, curves: &[Curve<'_>]) -> S
             draw_marker(
                 &mut svg,
                 marker,
-                (xs.map(b.mean_predicted_pct), ys.map(b.observed_no_start_pct)),
+                (
+                    xs.map(b.mean_predicted_pct),
+                    ys.map(b.observed_no_start_pct),
+                ),
                 size,
                 st.color,
             );

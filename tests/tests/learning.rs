@@ -73,7 +73,10 @@ async fn failures_teach_the_vehicle_its_pool_and_later_assessments() {
     let cal = last.calibration.clone().expect("a calibration");
     assert_eq!(cal.observations, 5);
     let offset = cal.thermal_offset_k.expect("offset");
-    assert!(offset.mean < -5.0, "five surprises move the offset down: {offset:?}");
+    assert!(
+        offset.mean < -5.0,
+        "five surprises move the offset down: {offset:?}"
+    );
     assert!(
         last.predicted_no_start_pct > first.predicted_no_start_pct,
         "each failure raises the next prediction: {:.1} → {:.1} %",
@@ -108,7 +111,10 @@ async fn failures_teach_the_vehicle_its_pool_and_later_assessments() {
     let after = assess(&t, cold_night("TRK-1", false)).await;
     let defaults = assess(&t, cold_night("TRK-1", true)).await;
     assert_eq!(after.calibration.as_ref().map(|c| c.observations), Some(5));
-    assert_eq!(defaults.calibration.as_ref().map(|c| c.observations), Some(0));
+    assert_eq!(
+        defaults.calibration.as_ref().map(|c| c.observations),
+        Some(0)
+    );
     assert!(
         after.no_start_pct > defaults.no_start_pct + 5.0,
         "calibrated {:.1} % vs defaults {:.1} %",

@@ -29,7 +29,10 @@ impl Process {
             .env("STARTMARGIN_LISTEN", format!("127.0.0.1:{port}"))
             .env("STARTMARGIN_METRICS_LISTEN", "")
             .env("STARTMARGIN_LOG_LEVEL", "warn")
-            .env("STARTMARGIN_STORE_URL", format!("sqlite://{}", store.display()))
+            .env(
+                "STARTMARGIN_STORE_URL",
+                format!("sqlite://{}", store.display()),
+            )
             .stdout(Stdio::null())
             .stderr(Stdio::null())
             .spawn()
@@ -98,7 +101,9 @@ async fn a_killed_server_keeps_every_acknowledged_attempt() {
     let reporter = tokio::spawn(async move {
         for b in 0..30 {
             match c
-                .report_start_attempts(pb::ReportStartAttemptsRequest { attempts: batch(start_s, b) })
+                .report_start_attempts(pb::ReportStartAttemptsRequest {
+                    attempts: batch(start_s, b),
+                })
                 .await
             {
                 Ok(r) => {
@@ -128,7 +133,9 @@ async fn a_killed_server_keeps_every_acknowledged_attempt() {
     let mut c = client(port).await;
     for &b in &acked {
         let results = c
-            .report_start_attempts(pb::ReportStartAttemptsRequest { attempts: batch(start_s, b) })
+            .report_start_attempts(pb::ReportStartAttemptsRequest {
+                attempts: batch(start_s, b),
+            })
             .await
             .expect("resent")
             .into_inner()

@@ -98,7 +98,11 @@ async fn hostile_attempts_are_refused_with_their_field_paths_and_the_rest_is_rec
         assert_eq!(r.index as usize, i + 1);
         let fields = refused_fields(r);
         let want = format!("attempts[{}].{field}", i + 1);
-        assert!(fields.contains(&want), "attempt {}: {fields:?}, want {want}", i + 1);
+        assert!(
+            fields.contains(&want),
+            "attempt {}: {fields:?}, want {want}",
+            i + 1
+        );
     }
 
     // Whole-call refusals: nothing, or more than a call may carry.
@@ -251,7 +255,11 @@ async fn a_flood_of_reports_is_bounded_per_tenant() {
         .await
         .expect_err("beyond the rate");
     assert_eq!(status.code(), tonic::Code::ResourceExhausted);
-    assert!(status.message().contains("50 attempts a minute"), "{}", status.message());
+    assert!(
+        status.message().contains("50 attempts a minute"),
+        "{}",
+        status.message()
+    );
     // Nothing of the refused call was stored.
     let r = t
         .client()

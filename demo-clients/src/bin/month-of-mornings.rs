@@ -30,14 +30,15 @@ struct Args {
     out: PathBuf,
 }
 
-/// Local midnight before the first morning (2027-01-04 00:00 at UTC−07:00), as a UTC instant.
-const FIRST_MIDNIGHT_UTC_S: u64 = 1_799_046_000;
+/// Local midnight before the first morning (2026-01-05 00:00 at UTC−07:00), as a UTC instant:
+/// a past January, so that every attempt lies before the server's clock.
+const FIRST_MIDNIGHT_UTC_S: u64 = 1_767_596_400;
 /// Offset of the depot's local time, for the text.
 const LOCAL_OFFSET: &str = "UTC−07:00";
 /// Mornings that calibrate before the chart's "after" window opens.
 const WARM_UP_MORNINGS: usize = 10;
 /// The cold morning every vehicle is assessed for at the end, °C.
-const TEST_MORNING_AIR_C: f64 = -26.0;
+const TEST_MORNING_AIR_C: f64 = -16.0;
 
 #[tokio::main]
 async fn main() -> ExitCode {
@@ -51,7 +52,8 @@ async fn main() -> ExitCode {
 }
 
 async fn run(args: Args) -> anyhow::Result<()> {
-    let store_dir = std::env::temp_dir().join(format!("startmargin-mornings-{}", std::process::id()));
+    let store_dir =
+        std::env::temp_dir().join(format!("startmargin-mornings-{}", std::process::id()));
     let (endpoint, server) = match args.endpoint {
         Some(e) => (e, None),
         None => {
@@ -79,7 +81,10 @@ async fn run(args: Args) -> anyhow::Result<()> {
     println!(
         "Air at departure: {:.1} to {:.1} °C. The records say every vehicle is as its archetype; {} are not.\n",
         month.iter().map(|m| m.air_c).fold(f64::INFINITY, f64::min),
-        month.iter().map(|m| m.air_c).fold(f64::NEG_INFINITY, f64::max),
+        month
+            .iter()
+            .map(|m| m.air_c)
+            .fold(f64::NEG_INFINITY, f64::max),
         fleet
             .iter()
             .filter(|v| v.truth != mornings::Truth::AsRecorded)
@@ -100,7 +105,12 @@ async fn run(args: Args) -> anyhow::Result<()> {
         for r in client.report_start_attempts(attempts).await? {
             if let Some(api::attempt_result::Outcome::Error(e)) = r.outcome {
                 refused += 1;
-                eprintln!("morning {}: attempt {} refused: {}", day + 1, r.index, e.message);
+                eprintln!(
+                    "morning {}: attempt {} refused: {}",
+                    day + 1,
+                    r.index,
+                    e.message
+                );
             }
         }
     }

@@ -33,7 +33,10 @@ impl StartMarginApi {
         let attempts = request.into_inner().attempts;
         let work = self.learning.report(tenant.as_str(), &attempts);
         let results = within_timeout(work)
-            .instrument(info_span!("report_start_attempts", attempts = attempts.len()))
+            .instrument(info_span!(
+                "report_start_attempts",
+                attempts = attempts.len()
+            ))
             .await?;
         Ok(Response::new(pb::ReportStartAttemptsResponse { results }))
     }
@@ -175,9 +178,7 @@ fn note_refusal(summary: &mut pb::StreamStartAttemptsResponse, index: usize, e: 
     }
 }
 
-async fn within_timeout<T>(
-    work: impl Future<Output = Result<T, ApiError>>,
-) -> Result<T, Status> {
+async fn within_timeout<T>(work: impl Future<Output = Result<T, ApiError>>) -> Result<T, Status> {
     match tokio::time::timeout(LEARNING_TIMEOUT, work).await {
         Ok(result) => result.map_err(Status::from),
         Err(_) => Err(Status::deadline_exceeded(format!(

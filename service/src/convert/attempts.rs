@@ -2,11 +2,9 @@
 //! and converts it to the model's attempt, the conditions at the attempt and the model input for
 //! that moment. No physics: the ranges are the physical validity ranges the API documents.
 
-use startmargin_model::constants::celsius_to_kelvin;
-use startmargin_model::learning::{
-    self, AttemptConditions, AttemptOutcome, ObservedAttempt,
-};
 use startmargin_model::assess::VehicleNight;
+use startmargin_model::constants::celsius_to_kelvin;
+use startmargin_model::learning::{self, AttemptConditions, AttemptOutcome, ObservedAttempt};
 use startmargin_proto::v1 as pb;
 
 use super::{ProfileParts, Violations, profile_parts};
@@ -53,7 +51,10 @@ pub fn attempt_from_pb(
     let mut v = Violations::default();
     let p = |name: &str| format!("{path}.{name}");
     let Some(vehicle) = attempt.vehicle.as_ref() else {
-        return Err(ApiError::field(p("vehicle"), "is required: the vehicle profile"));
+        return Err(ApiError::field(
+            p("vehicle"),
+            "is required: the vehicle profile",
+        ));
     };
     let ProfileParts {
         engine_aids,
@@ -92,7 +93,10 @@ pub fn attempt_from_pb(
         Ok(pb::AttemptOutcome::FiredAfterRetries) => Some(AttemptOutcome::FiredAfterRetries),
         Ok(pb::AttemptOutcome::DidNotFire) => Some(AttemptOutcome::DidNotFire),
         Ok(pb::AttemptOutcome::Unspecified) => {
-            v.add(p("outcome"), "is required (fired, fired after retries, did not fire)");
+            v.add(
+                p("outcome"),
+                "is required (fired, fired after retries, did not fire)",
+            );
             None
         }
         Err(_) => {
@@ -111,20 +115,32 @@ pub fn attempt_from_pb(
         None => Some(0.0),
         Some(d) => duration_value(&mut v, &p("preheat"), d, 0.0, MAX_PREHEAT_S),
     };
-    let peak_cranking_rpm =
-        v.opt_range(&p("peak_cranking_rpm"), attempt.peak_cranking_rpm, 1.0, 1000.0, "rpm");
-    let lowest_cranking_v =
-        v.opt_range(&p("lowest_cranking_v"), attempt.lowest_cranking_v, 1.0, 32.0, "V");
+    let peak_cranking_rpm = v.opt_range(
+        &p("peak_cranking_rpm"),
+        attempt.peak_cranking_rpm,
+        1.0,
+        1000.0,
+        "rpm",
+    );
+    let lowest_cranking_v = v.opt_range(
+        &p("lowest_cranking_v"),
+        attempt.lowest_cranking_v,
+        1.0,
+        32.0,
+        "V",
+    );
     let air_c = match attempt.air_c {
         None => {
-            v.add(p("air_c"), "is required: the outdoor air temperature at the attempt");
+            v.add(
+                p("air_c"),
+                "is required: the outdoor air temperature at the attempt",
+            );
             None
         }
         Some(t) => Some(v.range(&p("air_c"), t, -70.0, 60.0, "°C")),
     };
     let coolant_c = v.opt_range(&p("coolant_c"), attempt.coolant_c, -70.0, 130.0, "°C");
-    let battery_rest_v =
-        v.opt_range(&p("battery_rest_v"), attempt.battery_rest_v, 0.0, 32.0, "V");
+    let battery_rest_v = v.opt_range(&p("battery_rest_v"), attempt.battery_rest_v, 0.0, 32.0, "V");
     if let (Some(rest), Some(low)) = (battery_rest_v, lowest_cranking_v)
         && low > rest + 0.5
     {

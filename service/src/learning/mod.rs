@@ -106,11 +106,13 @@ impl Learning {
     fn take_tokens(&self, tenant: &str, n: usize) -> Result<(), Duration> {
         let per_minute = f64::from(self.limits.max_attempts_per_minute_per_tenant);
         let mut gates = self.gates.lock().unwrap_or_else(|e| e.into_inner());
-        let gate = gates.entry(tenant.to_string()).or_insert_with(|| TenantGate {
-            tokens: per_minute,
-            refilled_at: Instant::now(),
-            learning: Arc::new(AsyncMutex::new(())),
-        });
+        let gate = gates
+            .entry(tenant.to_string())
+            .or_insert_with(|| TenantGate {
+                tokens: per_minute,
+                refilled_at: Instant::now(),
+                learning: Arc::new(AsyncMutex::new(())),
+            });
         let now = Instant::now();
         gate.tokens = (gate.tokens
             + now.duration_since(gate.refilled_at).as_secs_f64() * per_minute / 60.0)
@@ -121,7 +123,9 @@ impl Learning {
             gate.tokens -= n;
             Ok(())
         } else {
-            Err(Duration::from_secs_f64((n - gate.tokens) * 60.0 / per_minute))
+            Err(Duration::from_secs_f64(
+                (n - gate.tokens) * 60.0 / per_minute,
+            ))
         }
     }
 
@@ -140,7 +144,10 @@ impl Learning {
         attempts: &[pb::StartAttempt],
     ) -> Result<BatchResults, ApiError> {
         if attempts.is_empty() {
-            return Err(ApiError::field("attempts", "must hold at least one attempt"));
+            return Err(ApiError::field(
+                "attempts",
+                "must hold at least one attempt",
+            ));
         }
         if attempts.len() > MAX_ATTEMPTS_PER_REPORT {
             return Err(ApiError::field(
@@ -224,8 +231,8 @@ impl Learning {
             tries += 1;
             let keys: Vec<_> = valid.iter().map(|(_, c)| storage::key_of(c)).collect();
             let known = storage::known(&self.store, tenant, &keys).await?;
-            let loaded = storage::load_for(&self.store, tenant, valid.iter().map(|(_, c)| c))
-                .await?;
+            let loaded =
+                storage::load_for(&self.store, tenant, valid.iter().map(|(_, c)| c)).await?;
             let new: Vec<(usize, ConvertedAttempt)> = valid
                 .iter()
                 .filter(|(_, c)| !known.contains(&storage::key_of(c)))
@@ -263,9 +270,10 @@ impl Learning {
         let mut updated = States::default();
         for (c, l) in new.iter().map(|(_, c)| c).zip(&learned) {
             if l.is_ok() {
-                updated
-                    .vehicles
-                    .insert(c.vehicle_id.clone(), states.prior_of(&c.vehicle_id, &c.archetype_id));
+                updated.vehicles.insert(
+                    c.vehicle_id.clone(),
+                    states.prior_of(&c.vehicle_id, &c.archetype_id),
+                );
                 if let Some(p) = states.pools.get(&c.archetype_id) {
                     updated.pools.insert(c.archetype_id.clone(), *p);
                 }

@@ -71,7 +71,11 @@ pub fn score(predictions: &[Scored], bin_count: usize) -> Reliability {
             from: i as f64 * width,
             to: (i + 1) as f64 * width,
             count,
-            mean_predicted: if count == 0 { 0.0 } else { p_sum / count as f64 },
+            mean_predicted: if count == 0 {
+                0.0
+            } else {
+                p_sum / count as f64
+            },
             observed_rate: if count == 0 {
                 0.0
             } else {
@@ -140,9 +144,15 @@ mod tests {
 
     #[test]
     fn hostile_input_is_skipped_or_bounded() {
-        let r = score(&[s(f64::NAN, true), s(f64::INFINITY, false), s(2.0, true)], 0);
+        let r = score(
+            &[s(f64::NAN, true), s(f64::INFINITY, false), s(2.0, true)],
+            0,
+        );
         assert_eq!(r.bins.len(), 1);
-        assert_eq!(r.bins[0].count, 1, "only the finite one counts, clamped to 1");
+        assert_eq!(
+            r.bins[0].count, 1,
+            "only the finite one counts, clamped to 1"
+        );
         assert_eq!(r.brier_score, 0.0);
         let empty = score(&[], 10);
         assert_eq!(empty.brier_score, 0.0);

@@ -34,9 +34,8 @@ impl LearningSettings {
     pub fn problems(&self) -> Vec<String> {
         let mut problems = Vec::new();
         if self.max_attempts_per_minute_per_tenant == 0 {
-            problems.push(
-                "learning.max_attempts_per_minute_per_tenant must be at least 1".to_string(),
-            );
+            problems
+                .push("learning.max_attempts_per_minute_per_tenant must be at least 1".to_string());
         }
         let r = self.calibration_refresh_s;
         if !(r.is_finite() && (1.0..=86_400.0).contains(&r)) {

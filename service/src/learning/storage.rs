@@ -12,8 +12,8 @@ use crate::convert::attempts::ConvertedAttempt;
 use crate::convert::timestamp;
 use crate::error::ApiError;
 use crate::store::{
-    AttemptKey, CalibrationWrite, CommitBatch, Store, StoreError, StoredAttempt,
-    StoredCalibration, StoredOutcome,
+    AttemptKey, CalibrationWrite, CommitBatch, Store, StoreError, StoredAttempt, StoredCalibration,
+    StoredOutcome,
 };
 
 /// The store's key of an attempt: vehicle and attempt time in whole milliseconds.
@@ -33,7 +33,10 @@ pub(super) async fn known(
     if keys.is_empty() {
         return Ok(HashSet::new());
     }
-    store.known_attempts(tenant, keys).await.map_err(ApiError::from)
+    store
+        .known_attempts(tenant, keys)
+        .await
+        .map_err(ApiError::from)
 }
 
 /// The states a batch starts from, with the stored versions to check at commit.
@@ -70,10 +73,7 @@ pub(super) async fn load_for<'a>(
     Ok(loaded(v, a))
 }
 
-fn loaded(
-    v: HashMap<String, StoredCalibration>,
-    a: HashMap<String, StoredCalibration>,
-) -> Loaded {
+fn loaded(v: HashMap<String, StoredCalibration>, a: HashMap<String, StoredCalibration>) -> Loaded {
     let mut out = Loaded::default();
     for (id, c) in v {
         out.vehicle_versions.insert(id.clone(), c.version);

@@ -114,7 +114,10 @@ pub(crate) fn attempt(path: &str, a: &StoredAttempt) -> Result<(), StoreError> {
     optional(&f("coolant_c"), a.coolant_c, finite)?;
     non_negative(&f("preheat_s"), a.preheat_s)?;
     for (name, p) in [
-        ("predicted_no_start_probability", a.predicted_no_start_probability),
+        (
+            "predicted_no_start_probability",
+            a.predicted_no_start_probability,
+        ),
         (
             "uncalibrated_no_start_probability",
             a.uncalibrated_no_start_probability,

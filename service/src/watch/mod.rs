@@ -632,7 +632,12 @@ impl WatchStream {
                 let zones = Arc::clone(&self.zones);
                 let policy = self.settings.policy;
                 // A calibration that cannot be refreshed now stays as it was (logged).
-                if let Err(e) = self.compute.learning.ensure_loaded(self.tenant.as_str()).await {
+                if let Err(e) = self
+                    .compute
+                    .learning
+                    .ensure_loaded(self.tenant.as_str())
+                    .await
+                {
                     debug!(error = %e, "calibrations not refreshed");
                 }
                 let calibration = self.compute.learning.lookup(

@@ -91,4 +91,3 @@ pub fn attempt_at(
         in_service_since: None,
     }
 }
-
