@@ -120,3 +120,59 @@ impl Client {
         .await
     }
 }
+
+impl crate::DetectedAttempt {
+    /// The report of this attempt for `profile` (the vehicle as in its assessments), with the
+    /// aids the detector cannot see: the preheat given and whether the block heater was on.
+    /// The air temperature is required by the API: `None` when the samples carried none.
+    ///
+    /// ```
+    /// use startmargin_sdk::{DetectedAttempt, DetectedOutcome, FuelGrade, VehicleProfile};
+    /// let profile = VehicleProfile::builder("PL-01").archetype("heavy-di-i6").battery(1900.0, 24.0)
+    ///     .oil("15W-40").fuel_grade(FuelGrade::UsWinterBlend).tank_l(300.0).build()?;
+    /// let seen = DetectedAttempt {
+    ///     started_at_s: 1_799_046_000.0 + 6.0 * 3600.0, outcome: DetectedOutcome::FiredAfterRetries,
+    ///     bursts: 2, cranking_s: 11.5, peak_cranking_rpm: Some(96.0), lowest_cranking_v: Some(17.8),
+    ///     battery_rest_v: Some(25.1), coolant_c: Some(-19.0), air_c: Some(-21.0),
+    /// };
+    /// let report = seen.to_start_attempt(&profile, None, false).expect("air temperature known");
+    /// assert_eq!(report.outcome, startmargin_sdk::api::AttemptOutcome::FiredAfterRetries as i32);
+    /// # Ok::<(), startmargin_sdk::BuildError>(())
+    /// ```
+    pub fn to_start_attempt(
+        &self,
+        profile: &crate::VehicleProfile,
+        preheat: Option<std::time::Duration>,
+        block_heater_on: bool,
+    ) -> Option<api::StartAttempt> {
+        let air_c = self.air_c?;
+        let outcome = match self.outcome {
+            crate::DetectedOutcome::Fired => api::AttemptOutcome::Fired,
+            crate::DetectedOutcome::FiredAfterRetries => api::AttemptOutcome::FiredAfterRetries,
+            crate::DetectedOutcome::DidNotFire => api::AttemptOutcome::DidNotFire,
+        };
+        let secs = |s: f64| prost_types::Duration {
+            seconds: s.trunc() as i64,
+            nanos: (s.fract() * 1e9).round().min(999_999_999.0) as i32,
+        };
+        Some(api::StartAttempt {
+            vehicle: Some(profile.as_pb().clone()),
+            attempted_at: Some(prost_types::Timestamp {
+                seconds: self.started_at_s.floor() as i64,
+                nanos: ((self.started_at_s - self.started_at_s.floor()) * 1e9)
+                    .round()
+                    .min(999_999_999.0) as i32,
+            }),
+            outcome: outcome as i32,
+            cranking_duration: Some(secs(self.cranking_s)),
+            peak_cranking_rpm: self.peak_cranking_rpm,
+            lowest_cranking_v: self.lowest_cranking_v,
+            air_c: Some(air_c),
+            coolant_c: self.coolant_c,
+            battery_rest_v: self.battery_rest_v,
+            preheat: preheat.map(|d| secs(d.as_secs_f64())),
+            block_heater_on,
+            in_service_since: None,
+        })
+    }
+}

@@ -105,6 +105,13 @@ impl VehicleNight {
         self
     }
 
+    /// Assess with the archetype defaults only, ignoring what the vehicle's reported start
+    /// attempts have taught the server (for a before/after comparison).
+    pub fn ignore_calibration(mut self) -> Self {
+        self.options_mut().ignore_calibration = true;
+        self
+    }
+
     /// The depot the vehicle parks at tonight, for the depot's plug-in plan on a fleet stream
     /// (see [`crate::FleetItem::depot_outlets`]).
     pub fn depot(mut self, depot_id: impl Into<String>) -> Self {

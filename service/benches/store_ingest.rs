@@ -36,6 +36,7 @@ fn attempt(vehicle_id: String, attempted_at_ms: i64) -> StoredAttempt {
         preheat_s: 15.0,
         block_heater_on: false,
         predicted_no_start_probability: 0.21,
+        uncalibrated_no_start_probability: 0.18,
         predicted_margin_k: 2.5,
         calibrated_observations: 12,
         received_at_ms: attempted_at_ms + 30_000,

@@ -18,7 +18,10 @@
 //! be mapped back to what was sent, also after a broken stream; a duplicate is refused for that
 //! item alone.
 
+mod learning;
 pub mod pool;
+
+pub use self::learning::{ATTEMPT_PATH, ATTEMPTS_PATH};
 
 use std::collections::{HashMap, HashSet};
 use std::panic::{AssertUnwindSafe, catch_unwind};
@@ -85,18 +88,29 @@ pub struct StartMarginApi {
     limits: Limits,
     draining: CancellationToken,
     watch: crate::watch::WatchSettings,
+    learning: Arc<crate::learning::Learning>,
 }
 
 static DESCRIBE: OnceLock<pb::DescribeModelResponse> = OnceLock::new();
 
 impl StartMarginApi {
-    /// Builds the service from the configuration; cancelling `draining` ends every open stream
-    /// with UNAVAILABLE.
-    pub fn new(config: &Config, draining: CancellationToken) -> std::io::Result<Self> {
+    /// Builds the service from the configuration on an open `store`; cancelling `draining` ends
+    /// every open stream with UNAVAILABLE.
+    pub fn new(
+        config: &Config,
+        draining: CancellationToken,
+        store: crate::store::Store,
+    ) -> std::io::Result<Self> {
         let in_flight = Arc::new(Semaphore::new(config.concurrency_limit));
         let streams = &config.streams;
+        let pool = Arc::new(ComputePool::new(config.effective_compute_threads())?);
         Ok(Self {
-            pool: Arc::new(ComputePool::new(config.effective_compute_threads())?),
+            learning: Arc::new(crate::learning::Learning::new(
+                store,
+                Arc::clone(&pool),
+                config.learning.limits(),
+            )),
+            pool,
             budget: Arc::new(Budget::new(
                 Arc::clone(&in_flight),
                 streams.stream_permits(config.concurrency_limit),
@@ -126,6 +140,7 @@ impl StartMarginApi {
         request: Request<pb::AssessVehicleRequest>,
     ) -> Result<Response<pb::AssessVehicleResponse>, Status> {
         let span = info_span!("assess_vehicle");
+        let tenant = tenant_of(&request);
         async move {
             let night = request.into_inner().night.ok_or_else(|| {
                 ApiError::field(
@@ -145,9 +160,21 @@ impl StartMarginApi {
                 "assessing"
             );
             let policy = self.limits.policy;
+            self.learning.ensure_loaded(tenant.as_str()).await?;
+            let vehicle_id = night.vehicle.as_ref().map_or("", |v| v.vehicle_id.as_str());
+            let calibration =
+                self.learning
+                    .lookup(tenant.as_str(), vehicle_id, convert::archetype_of(&night));
             let job = self.pool.run(Lane::Unary, move || {
                 let _permit = permit;
-                convert::assess_pb_with(&night, NIGHT_PATH, &ZoneForecasts::new(), &policy)
+                convert::decide_calibrated(
+                    &night,
+                    NIGHT_PATH,
+                    &ZoneForecasts::new(),
+                    &policy,
+                    calibration,
+                )
+                .map(|d| d.message)
             });
             let assessment = match tokio::time::timeout(self.limits.request_timeout, job).await {
                 Ok(result) => result?,
@@ -196,6 +223,7 @@ impl StartMarginApi {
             depots: HashMap::new(),
             candidates: Arc::new(Mutex::new(HashMap::new())),
             progress: Arc::new(DepotProgress::default()),
+            learning: Arc::clone(&self.learning),
         };
         tokio::spawn(
             stream
@@ -219,11 +247,13 @@ impl StartMarginApi {
             .quota
             .enter(&tenant, self.limits.max_streams_per_tenant)?;
         // The watch runs its re-scores on its own lane of the compute pool, within the budget.
+        self.learning.ensure_loaded(tenant.as_str()).await?;
         let compute = crate::watch::Compute {
             pool: Arc::clone(&self.pool),
             lane: pool::new_stream_lane(),
             budget: Arc::clone(&self.budget),
             quota,
+            learning: Arc::clone(&self.learning),
         };
         Ok(Response::new(crate::watch::start(
             request,
@@ -357,6 +387,8 @@ struct FleetStream {
     candidates: Candidates,
     /// Vehicles of each depot still computing.
     progress: Arc<DepotProgress>,
+    /// The tenant's vehicle calibrations.
+    learning: Arc<crate::learning::Learning>,
 }
 
 impl FleetStream {
@@ -486,10 +518,10 @@ impl FleetStream {
                 self.pool.submit(
                     self.lane,
                     Box::new(move || {
-                        let plan = catch_unwind(AssertUnwindSafe(|| {
-                            depot_plan(&depot, found)
-                        }))
-                        .map_err(|_| ApiError::Internal("the plug-in plan panicked".to_string()));
+                        let plan = catch_unwind(AssertUnwindSafe(|| depot_plan(&depot, found)))
+                            .map_err(|_| {
+                                ApiError::Internal("the plug-in plan panicked".to_string())
+                            });
                         let _ = tx.send((item_id, plan));
                     }),
                 )?;
@@ -595,6 +627,14 @@ impl FleetStream {
                         .map_err(|e| End::Abort(e.into()))?,
                 };
                 debug!(item_id, vehicle_id, "vehicle");
+                let tenant = self.tenant.as_str();
+                if let Err(e) = self.learning.ensure_loaded(tenant).await {
+                    self.send_error(permit, item_id, e);
+                    return Ok(());
+                }
+                let calibration =
+                    self.learning
+                        .lookup(tenant, &vehicle_id, convert::archetype_of(&night));
                 let zones = Arc::clone(&self.zones);
                 let candidates = Arc::clone(&self.candidates);
                 let policy = self.limits.policy;
@@ -608,7 +648,13 @@ impl FleetStream {
                     self.lane,
                     Box::new(move || {
                         let decided = catch_unwind(AssertUnwindSafe(|| {
-                            convert::decide(&night, FLEET_VEHICLE_PATH, &zones, &policy)
+                            convert::decide_calibrated(
+                                &night,
+                                FLEET_VEHICLE_PATH,
+                                &zones,
+                                &policy,
+                                calibration,
+                            )
                         }))
                         .unwrap_or_else(|_| {
                             Err(ApiError::Internal("the assessment panicked".to_string()))

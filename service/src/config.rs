@@ -15,8 +15,9 @@ use crate::convert::Policy;
 /// Prefix of the environment variables that override the file (`STARTMARGIN_LISTEN`, …).
 pub const ENV_PREFIX: &str = "STARTMARGIN_";
 
-/// What follows [`ENV_PREFIX`] in the variables of the `[store]` section.
-const STORE_ENV_INFIX: &str = "STORE_";
+/// The sections whose keys are also set as `STARTMARGIN_<SECTION>_<KEY>` (e.g.
+/// `STARTMARGIN_STORE_URL` → `store.url`, `STARTMARGIN_STREAMS_STREAM_SHARE_PCT`).
+const ENV_SECTIONS: [&str; 3] = ["store", "streams", "learning"];
 
 /// Default listen address: loopback only, so an unconfigured server is not exposed.
 pub const DEFAULT_LISTEN: &str = "127.0.0.1:50051";
@@ -131,8 +132,12 @@ pub struct Config {
     /// Age after which a client connection is asked to reconnect (HTTP/2 GOAWAY; calls in flight
     /// finish), seconds, so that clients spread over replicas added later; 0 = never.
     pub max_connection_age_s: f64,
-    /// The `[streams]` section: fair sharing, per-tenant quotas, watch idle timeout.
+    /// The `[streams]` section: fair sharing, per-tenant quotas, watch idle timeout (also set
+    /// as `STARTMARGIN_STREAMS_<KEY>`).
     pub streams: crate::watch::settings::StreamSettings,
+    /// The `[learning]` section: the per-tenant rate of start-attempt reports and how long a
+    /// replica trusts its in-memory calibrations (also set as `STARTMARGIN_LEARNING_<KEY>`).
+    pub learning: crate::learning::settings::LearningSettings,
     /// The `[store]` section: the database of start history and calibrations. Its keys are
     /// also set as `STARTMARGIN_STORE_<KEY>` (e.g. `STARTMARGIN_STORE_URL`).
     pub store: crate::store::StoreConfig,
@@ -179,6 +184,7 @@ impl Default for Config {
             max_connection_age_s: 0.0,
             streams: Default::default(),
             store: Default::default(),
+            learning: Default::default(),
         }
     }
 }
@@ -256,13 +262,18 @@ impl Config {
             figment = figment.merge(Toml::file_exact(path));
         }
         figment.merge(Env::prefixed(ENV_PREFIX).map(|key| {
-            // `STARTMARGIN_STORE_URL` → `store.url`: the [store] keys as flat variables.
-            match key.as_str().get(..STORE_ENV_INFIX.len()) {
-                Some(head) if head.eq_ignore_ascii_case(STORE_ENV_INFIX) => {
-                    format!("store.{}", &key.as_str()[STORE_ENV_INFIX.len()..]).into()
+            // `STARTMARGIN_STORE_URL` → `store.url`: a section's keys as flat variables.
+            let k = key.as_str();
+            for section in ENV_SECTIONS {
+                if let Some(rest) = k
+                    .get(..section.len() + 1)
+                    .filter(|head| head.eq_ignore_ascii_case(&format!("{section}_")))
+                    .map(|_| &k[section.len() + 1..])
+                {
+                    return format!("{section}.{rest}").into();
                 }
-                _ => key.into(),
             }
+            key.into()
         }))
     }
 
@@ -494,6 +505,7 @@ impl Config {
         }
         problems.extend(self.streams.problems());
         problems.extend(self.store.problems());
+        problems.extend(self.learning.problems());
         let age = self.max_connection_age_s;
         if !age.is_finite() || !(0.0..=604_800.0).contains(&age) {
             problems.push(format!(

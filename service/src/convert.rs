@@ -31,6 +31,7 @@ use startmargin_proto::v1 as pb;
 use crate::error::{ApiError, FieldViolation};
 use crate::local_time::Zone;
 
+pub mod attempts;
 pub mod describe;
 mod grades;
 
@@ -719,7 +720,7 @@ fn options_from_pb(
 
 /// A vehicle profile converted for the model (engine and aids, battery, oil, fuel); `None`
 /// parts had a violation.
-struct ProfileParts {
+pub(crate) struct ProfileParts {
     engine_aids: Option<(archetypes::EngineConfig, AidConfig)>,
     battery: BatteryConfig,
     oil: Option<SaeGrade>,
@@ -1160,6 +1161,31 @@ pub fn decide(
     zones: &ZoneForecasts,
     policy: &Policy,
 ) -> Result<Decided, ApiError> {
+    decide_calibrated(night, path, zones, policy, None)
+}
+
+/// The vehicle's archetype id as sent ("" for a fully specified engine): the key of its pooled
+/// calibration.
+pub fn archetype_of(night: &pb::VehicleNight) -> &str {
+    night
+        .vehicle
+        .as_ref()
+        .and_then(|v| v.engine.as_ref())
+        .map_or("", |e| e.archetype_id.as_str())
+}
+
+/// [`decide`] with what the vehicle's reported start attempts taught (`None`: nothing, or the
+/// request asks to ignore it): the model applies the calibration's means and its spread widens
+/// the no-start probability; the answer says how many observations calibrated it.
+pub fn decide_calibrated(
+    night: &pb::VehicleNight,
+    path: &str,
+    zones: &ZoneForecasts,
+    policy: &Policy,
+    calibration: Option<crate::learning::book::Looked>,
+) -> Result<Decided, ApiError> {
+    let ignore = night.options.as_ref().is_some_and(|o| o.ignore_calibration);
+    let calibration = calibration.filter(|_| !ignore);
     let target = match night.options.as_ref().and_then(|o| o.target_no_start_pct) {
         None => policy.target_probability,
         Some(pct) if pct.is_finite() && pct > 0.0 && pct < 100.0 => pct / 100.0,
@@ -1171,7 +1197,7 @@ pub fn decide(
         }
     };
     // Every bad field at once: the zone's violation joins the night's.
-    let (vehicle_id, domain, zone) = match (
+    let (vehicle_id, mut domain, zone) = match (
         night_from_pb(night, path, zones),
         Zone::from_name(&night.time_zone),
     ) {
@@ -1186,6 +1212,9 @@ pub fn decide(
         (Err(e), _) => return Err(e),
         (Ok(_), Err(why)) => return Err(ApiError::field(format!("{path}.time_zone"), why)),
     };
+    if let Some(c) = calibration {
+        domain.options.calibration = c.calibration;
+    }
     // Model time for the metrics: the whole decision (assessment, probability, actions, plan).
     let started = std::time::Instant::now();
     let model_err = |e| ApiError::from_model_in(path, e, &zone);
@@ -1243,6 +1272,11 @@ pub fn decide(
         })
         .collect();
     message.headline = headline(p.binding, p.binding_margin, a);
+    message.calibration = Some(crate::learning::calibration_to_pb(
+        &domain.options.calibration,
+        calibration.map_or(0, |c| c.pooled_observations),
+        None,
+    ));
     crate::metrics::record_model_time(started.elapsed());
     Ok(Decided { message, plug_in })
 }

@@ -21,6 +21,7 @@ pub mod codec;
 pub mod config;
 pub mod convert;
 pub mod error;
+pub mod learning;
 pub mod local_time;
 pub mod metrics;
 pub mod metrics_http;

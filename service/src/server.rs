@@ -129,8 +129,11 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
         draining: draining.clone(),
     });
 
-    let api =
-        StartMarginApi::new(&config, draining.clone()).context("cannot start compute threads")?;
+    let store = crate::store::Store::open(&config.store)
+        .await
+        .context("cannot open the store")?;
+    let api = StartMarginApi::new(&config, draining.clone(), store)
+        .context("cannot start compute threads")?;
     let api = ApiRoutes::new(api, config.max_decode_message_bytes);
     let reflection_v1 = tonic_reflection::server::Builder::configure()
         .register_encoded_file_descriptor_set(startmargin_proto::FILE_DESCRIPTOR_SET)
@@ -211,13 +214,32 @@ pub async fn spawn(config: Config) -> anyhow::Result<RunningServer> {
     })
 }
 
-/// Defaults on `127.0.0.1:0`: what tests, benchmarks and demos use.
+/// Defaults on `127.0.0.1:0` with a fresh SQLite store of its own in the system's temporary
+/// folder (so that runs neither share history nor leave files in the working directory): what
+/// tests, benchmarks and demos use.
 pub async fn spawn_on_loopback() -> anyhow::Result<RunningServer> {
-    spawn(Config {
+    spawn(loopback_config()).await
+}
+
+/// [`spawn_on_loopback`] with the SQLite store at `path` (created with its folder on first use).
+pub async fn spawn_on_loopback_with_store(path: &std::path::Path) -> anyhow::Result<RunningServer> {
+    let mut config = loopback_config();
+    config.store.url = format!("sqlite://{}", path.display());
+    spawn(config).await
+}
+
+/// The default configuration on `127.0.0.1:0` with a fresh SQLite store under the system's
+/// temporary folder (`startmargin-<pid>-<n>/starts.db`).
+pub fn loopback_config() -> Config {
+    static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let n = NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let dir = std::env::temp_dir().join(format!("startmargin-{}-{n}", std::process::id()));
+    let mut config = Config {
         listen: SocketAddr::from(([127, 0, 0, 1], 0)),
         ..Config::default()
-    })
-    .await
+    };
+    config.store.url = format!("sqlite://{}", dir.join("starts.db").display());
+    config
 }
 
 /// Health → NOT_SERVING, streams end, listener closes, unary calls finish, all within `timeout`.

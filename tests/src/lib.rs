@@ -69,12 +69,10 @@ impl TestServer {
     }
 }
 
-/// The default configuration on `127.0.0.1:0` (a free port).
+/// The default configuration on `127.0.0.1:0` (a free port) with a fresh SQLite store of its own
+/// under the temporary folder, so that no two test servers share a history.
 pub fn loopback_config() -> Config {
-    Config {
-        listen: SocketAddr::from(([127, 0, 0, 1], 0)),
-        ..Config::default()
-    }
+    startmargin_service::server::loopback_config()
 }
 
 /// A channel to a server on `addr`.

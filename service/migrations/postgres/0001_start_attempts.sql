@@ -13,6 +13,7 @@ CREATE TABLE start_attempts (
     preheat_s DOUBLE PRECISION NOT NULL,
     block_heater_on BOOLEAN NOT NULL,
     predicted_no_start_probability DOUBLE PRECISION NOT NULL,
+    uncalibrated_no_start_probability DOUBLE PRECISION NOT NULL,
     predicted_margin_k DOUBLE PRECISION NOT NULL,
     calibrated_observations BIGINT NOT NULL,
     received_at_ms BIGINT NOT NULL,

@@ -13,6 +13,7 @@ CREATE TABLE start_attempts (
     preheat_s REAL NOT NULL,
     block_heater_on INTEGER NOT NULL CHECK (block_heater_on IN (0, 1)),
     predicted_no_start_probability REAL NOT NULL,
+    uncalibrated_no_start_probability REAL NOT NULL,
     predicted_margin_k REAL NOT NULL,
     calibrated_observations INTEGER NOT NULL,
     received_at_ms INTEGER NOT NULL,

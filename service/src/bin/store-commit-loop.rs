@@ -30,6 +30,7 @@ fn attempt(vehicle_id: &str, attempted_at_ms: i64) -> StoredAttempt {
         preheat_s: 8.0,
         block_heater_on: true,
         predicted_no_start_probability: 0.05,
+        uncalibrated_no_start_probability: 0.04,
         predicted_margin_k: 6.0,
         calibrated_observations: 0,
         received_at_ms: attempted_at_ms,

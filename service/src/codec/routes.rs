@@ -19,7 +19,9 @@ use tonic_prost::ProstEncoder;
 
 use super::decode::ItemKind;
 use super::inbound::Inbound;
-use crate::api::{FLEET_ITEM_PATH, NIGHT_PATH, StartMarginApi, WATCH_UPDATE_PATH};
+use crate::api::{
+    ATTEMPT_PATH, ATTEMPTS_PATH, FLEET_ITEM_PATH, NIGHT_PATH, StartMarginApi, WATCH_UPDATE_PATH,
+};
 
 /// Fully qualified name of the API service.
 pub const SERVICE_NAME: &str = "startmargin.v1.StartMarginService";
@@ -60,6 +62,18 @@ const FLEET: ItemKind = ItemKind {
 const WATCH: ItemKind = ItemKind {
     top_path: WATCH_UPDATE_PATH,
     in_stream: true,
+};
+const REPORT: ItemKind = ItemKind {
+    top_path: ATTEMPTS_PATH,
+    in_stream: false,
+};
+const ATTEMPT_STREAM: ItemKind = ItemKind {
+    top_path: ATTEMPT_PATH,
+    in_stream: true,
+};
+const READ_OUT: ItemKind = ItemKind {
+    top_path: "",
+    in_stream: false,
 };
 
 type BoxFuture<T> = Pin<Box<dyn Future<Output = T> + Send>>;
@@ -111,6 +125,46 @@ impl tower::Service<http::Request<Body>> for ApiRoutes {
                 "WatchFleet" => {
                     let inbound = Inbound::new(body, limit, WATCH);
                     streaming(api.watch_fleet(rebuild(parts, inbound)).await)
+                }
+                "ReportStartAttempts" => {
+                    match single(Inbound::<pb::ReportStartAttemptsRequest>::new(
+                        body, limit, REPORT,
+                    ))
+                    .await
+                    {
+                        Ok(message) => {
+                            unary(api.report_start_attempts(rebuild(parts, message)).await)
+                        }
+                        Err(status) => status.into_http(),
+                    }
+                }
+                "StreamStartAttempts" => {
+                    let inbound = Inbound::new(body, limit, ATTEMPT_STREAM);
+                    unary(api.stream_start_attempts(rebuild(parts, inbound)).await)
+                }
+                "GetVehicleCalibration" => {
+                    match single(Inbound::<pb::GetVehicleCalibrationRequest>::new(
+                        body, limit, READ_OUT,
+                    ))
+                    .await
+                    {
+                        Ok(message) => {
+                            unary(api.get_vehicle_calibration(rebuild(parts, message)).await)
+                        }
+                        Err(status) => status.into_http(),
+                    }
+                }
+                "GetFleetReliability" => {
+                    match single(Inbound::<pb::GetFleetReliabilityRequest>::new(
+                        body, limit, READ_OUT,
+                    ))
+                    .await
+                    {
+                        Ok(message) => {
+                            unary(api.get_fleet_reliability(rebuild(parts, message)).await)
+                        }
+                        Err(status) => status.into_http(),
+                    }
                 }
                 _ => Status::unimplemented(format!("no method {rpc:?} in {SERVICE_NAME}"))
                     .into_http(),

@@ -157,6 +157,30 @@ impl Store {
         Ok((vehicles, archetypes))
     }
 
+    /// Every stored calibration of the tenant, vehicles and archetype pools (each at most
+    /// [`MAX_TENANT_CALIBRATIONS`], in id order): what a replica holds in memory to assess with.
+    pub async fn tenant_calibrations(
+        &self,
+        tenant: &str,
+    ) -> Result<
+        (
+            HashMap<String, StoredCalibration>,
+            HashMap<String, StoredCalibration>,
+        ),
+        StoreError,
+    > {
+        validate::tenant(tenant)?;
+        let vehicles = dispatch!(
+            self,
+            all_calibrations(tenant, CalibrationKind::Vehicle, MAX_TENANT_CALIBRATIONS)
+        )?;
+        let archetypes = dispatch!(
+            self,
+            all_calibrations(tenant, CalibrationKind::Archetype, MAX_TENANT_CALIBRATIONS)
+        )?;
+        Ok((vehicles, archetypes))
+    }
+
     /// One vehicle's stored calibration, if any.
     pub async fn vehicle_calibration(
         &self,

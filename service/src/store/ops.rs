@@ -7,8 +7,8 @@
 /// Columns of `start_attempts`, in the order of `bind_attempt` and `attempt_of`.
 pub(crate) const ATTEMPT_COLUMNS: &str = "vehicle_id, attempted_at_ms, archetype_id, outcome, \
      cranking_s, peak_cranking_rpm, lowest_cranking_v, air_c, coolant_c, preheat_s, \
-     block_heater_on, predicted_no_start_probability, predicted_margin_k, \
-     calibrated_observations, received_at_ms";
+     block_heater_on, predicted_no_start_probability, uncalibrated_no_start_probability, \
+     predicted_margin_k, calibrated_observations, received_at_ms";
 
 /// Columns of a calibration table after the id, in the order of `bind_calibration`.
 pub(crate) const CALIBRATION_COLUMNS: &str = "thermal_offset_mean_k, thermal_offset_sd_k, \
@@ -59,6 +59,8 @@ macro_rules! store_ops {
                 preheat_s: row.try_get("preheat_s")?,
                 block_heater_on: row.try_get("block_heater_on")?,
                 predicted_no_start_probability: row.try_get("predicted_no_start_probability")?,
+                uncalibrated_no_start_probability: row
+                    .try_get("uncalibrated_no_start_probability")?,
                 predicted_margin_k: row.try_get("predicted_margin_k")?,
                 calibrated_observations: u32::try_from(observations)
                     .map_err(|_| internal("observation count"))?,
@@ -184,6 +186,29 @@ macro_rules! store_ops {
             Ok(found)
         }
 
+        pub(super) async fn all_calibrations(
+            pool: &Pool,
+            tenant: &str,
+            kind: CalibrationKind,
+            limit: usize,
+        ) -> Result<HashMap<String, StoredCalibration>, StoreError> {
+            let (table, id) = calibration_table(kind);
+            let sql = format!(
+                "SELECT {id}, {CALIBRATION_COLUMNS} FROM {table} \
+                 WHERE tenant_id = $1 ORDER BY {id} LIMIT $2"
+            );
+            let rows = sqlx::query(&sql)
+                .bind(tenant)
+                .bind(limit as i64)
+                .fetch_all(pool)
+                .await?;
+            let mut found = HashMap::with_capacity(rows.len());
+            for row in &rows {
+                found.insert(row.try_get::<String, _>(0)?, calibration_of(row)?);
+            }
+            Ok(found)
+        }
+
         async fn insert_attempt(
             tx: &mut Tx,
             tenant: &str,
@@ -191,7 +216,7 @@ macro_rules! store_ops {
         ) -> Result<AttemptResult, StoreError> {
             let sql = format!(
                 "INSERT INTO start_attempts (tenant_id, {ATTEMPT_COLUMNS}) VALUES \
-                 ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16) \
+                 ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17) \
                  ON CONFLICT (tenant_id, vehicle_id, attempted_at_ms) DO NOTHING"
             );
             let inserted = sqlx::query(&sql)
@@ -208,6 +233,7 @@ macro_rules! store_ops {
                 .bind(a.preheat_s)
                 .bind(a.block_heater_on)
                 .bind(a.predicted_no_start_probability)
+                .bind(a.uncalibrated_no_start_probability)
                 .bind(a.predicted_margin_k)
                 .bind(i64::from(a.calibrated_observations))
                 .bind(a.received_at_ms)

@@ -11,6 +11,9 @@ pub const MAX_BATCH_CALIBRATIONS: usize = 1_000;
 pub const MAX_LOOKUP_KEYS: usize = 10_000;
 /// Most rows `recent_attempts` returns.
 pub const MAX_RECENT_ATTEMPTS: usize = 1_000;
+/// Most vehicle calibrations, and separately most archetype pools, `tenant_calibrations`
+/// returns (a large fleet).
+pub const MAX_TENANT_CALIBRATIONS: usize = 1_000_000;
 /// Most rows `fleet_attempts` returns (a month of mornings of a large fleet).
 pub const MAX_FLEET_ATTEMPTS: usize = 50_000;
 /// Longest tenant id, bytes.
@@ -85,6 +88,8 @@ pub struct StoredAttempt {
     pub block_heater_on: bool,
     /// The no-start probability the model gave before this attempt's update, 0 to 1.
     pub predicted_no_start_probability: f64,
+    /// The no-start probability of the archetype defaults (no calibration), 0 to 1.
+    pub uncalibrated_no_start_probability: f64,
     /// The start margin the model gave before this attempt's update, kelvin.
     pub predicted_margin_k: f64,
     /// Observations that had calibrated that prediction.
@@ -111,6 +116,8 @@ impl StoredAttempt {
             && self.block_heater_on == other.block_heater_on
             && bits(self.predicted_no_start_probability)
                 == bits(other.predicted_no_start_probability)
+            && bits(self.uncalibrated_no_start_probability)
+                == bits(other.uncalibrated_no_start_probability)
             && bits(self.predicted_margin_k) == bits(other.predicted_margin_k)
             && self.calibrated_observations == other.calibrated_observations
     }

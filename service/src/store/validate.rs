@@ -113,13 +113,20 @@ pub(crate) fn attempt(path: &str, a: &StoredAttempt) -> Result<(), StoreError> {
     finite(&f("air_c"), a.air_c)?;
     optional(&f("coolant_c"), a.coolant_c, finite)?;
     non_negative(&f("preheat_s"), a.preheat_s)?;
-    let p = a.predicted_no_start_probability;
-    finite(&f("predicted_no_start_probability"), p)?;
-    if !(0.0..=1.0).contains(&p) {
-        return Err(StoreError::invalid(
-            f("predicted_no_start_probability"),
-            "must be between 0 and 1",
-        ));
+    for (name, p) in [
+        (
+            "predicted_no_start_probability",
+            a.predicted_no_start_probability,
+        ),
+        (
+            "uncalibrated_no_start_probability",
+            a.uncalibrated_no_start_probability,
+        ),
+    ] {
+        finite(&f(name), p)?;
+        if !(0.0..=1.0).contains(&p) {
+            return Err(StoreError::invalid(f(name), "must be between 0 and 1"));
+        }
     }
     finite(&f("predicted_margin_k"), a.predicted_margin_k)?;
     Ok(())

@@ -68,6 +68,8 @@ pub struct Compute {
     pub budget: Arc<Budget>,
     /// The stream's place in its tenant's quota.
     pub quota: QuotaGuard,
+    /// The tenant's vehicle calibrations (re-scores assess with them).
+    pub learning: Arc<crate::learning::Learning>,
 }
 
 /// Most alerts that wait unread before the stream stops reading input and submitting re-scores.
@@ -633,12 +635,26 @@ impl WatchStream {
                 };
                 let zones = Arc::clone(&self.zones);
                 let policy = self.settings.policy;
+                // A calibration that cannot be refreshed now stays as it was (logged).
+                if let Err(e) = self
+                    .compute
+                    .learning
+                    .ensure_loaded(self.tenant.as_str())
+                    .await
+                {
+                    debug!(error = %e, "calibrations not refreshed");
+                }
+                let calibration = self.compute.learning.lookup(
+                    self.tenant.as_str(),
+                    &id,
+                    convert::archetype_of(&night),
+                );
                 let tx = done_tx.clone();
                 let job_id = id.clone();
                 let n = submitted;
                 let job: Job = Box::new(move || {
                     let scored = catch_unwind(AssertUnwindSafe(|| {
-                        convert::decide(&night, NIGHT, &zones, &policy)
+                        convert::decide_calibrated(&night, NIGHT, &zones, &policy, calibration)
                     }))
                     .unwrap_or_else(|_| {
                         Err(ApiError::Internal("the assessment panicked".to_string()))

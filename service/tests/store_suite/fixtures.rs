@@ -22,6 +22,7 @@ pub fn attempt(vehicle: &str, at_ms: i64) -> StoredAttempt {
         preheat_s: 12.0,
         block_heater_on: false,
         predicted_no_start_probability: 0.125,
+        uncalibrated_no_start_probability: 0.0625,
         predicted_margin_k: 4.75,
         calibrated_observations: 3,
         received_at_ms: at_ms + 60_000,

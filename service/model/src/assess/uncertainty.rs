@@ -388,7 +388,11 @@ pub fn no_start_probability_in(
 /// central margins alone: every mode's spread is at least its (calibrated) model error, so Φ(−m/σ_model) is a
 /// lower bound of the mode's probability (equal to it below zero). Keep it a lower bound of
 /// [`no_start_probability_from`] whenever that changes (the shared-work grid test checks it).
-pub(crate) fn misses_target_for_sure(night: &VehicleNight, centre: &Assessment, target: f64) -> bool {
+pub(crate) fn misses_target_for_sure(
+    night: &VehicleNight,
+    centre: &Assessment,
+    target: f64,
+) -> bool {
     FailureMode::ALL
         .iter()
         .any(|&m| normal_cdf(-centre.modes.get(m) / calibrated_model_sigma(night, m)) > target)

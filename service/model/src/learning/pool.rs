@@ -69,6 +69,9 @@ pub fn update_pool(
     }
 }
 
+/// Deviation beyond which a vehicle's message is down-weighted, in standard deviations.
+const OUTLIER_SIGMAS: f64 = 2.0;
+
 /// Folds one message into a pool belief.
 fn fold(pool: Belief, prior: Belief, posterior: Belief, between_sd: f64) -> Belief {
     let prior_precision = 1.0 / (prior.sd * prior.sd);
@@ -83,7 +86,15 @@ fn fold(pool: Belief, prior: Belief, posterior: Belief, between_sd: f64) -> Beli
     if !message_mean.is_finite() {
         return pool;
     }
-    let message_var = 1.0 / message_precision + between_sd * between_sd;
+    let mut message_var = 1.0 / message_precision + between_sd * between_sd;
+    // Bounded influence (in the manner of Huber's M-estimators): a vehicle far outside its
+    // archetype has a fault of its own (worn rings, a dead plug) and must not drag the prior of
+    // its healthy siblings. Beyond 2 standard deviations of the pool's prediction the message is
+    // widened so that it pulls no harder than a 2-sigma message would.
+    let deviation = (message_mean - pool.mean).abs() / (message_var + pool.sd * pool.sd).sqrt();
+    if deviation > OUTLIER_SIGMAS {
+        message_var *= (deviation / OUTLIER_SIGMAS).powi(2);
+    }
     let pool_precision = 1.0 / (pool.sd * pool.sd);
     let precision = pool_precision + 1.0 / message_var;
     let mean = (pool.mean * pool_precision + message_mean / message_var) / precision;
