@@ -70,7 +70,7 @@ async fn failures_teach_the_vehicle_its_pool_and_later_assessments() {
         first.predicted_no_start_pct
     );
     let last = recorded(&results[0]);
-    let cal = last.calibration.clone().expect("a calibration");
+    let cal = last.calibration.expect("a calibration");
     assert_eq!(cal.observations, 5);
     let offset = cal.thermal_offset_k.expect("offset");
     assert!(
