@@ -1,10 +1,10 @@
 #!/usr/bin/env bash
 # Starts a throwaway PostgreSQL cluster for the store tests and exports its URL as
-# STARTMARGIN_TEST_POSTGRES_URL; stop it with stop_test_postgres (or at exit: `trap`).
+# TEST_POSTGRES_URL_FOR_STARTMARGIN; stop it with stop_test_postgres (or at exit: `trap`).
 # Source it: `. .ci/postgres.sh && start_test_postgres`. Installs the Debian package
 # `postgresql` when initdb is missing and we are root (CI). As root the cluster runs as the
 # `postgres` OS user; otherwise as the current user. Trust auth on 127.0.0.1 only, a fixed
-# unusual port (STARTMARGIN_TEST_POSTGRES_PORT, default 54329).
+# unusual port (TEST_POSTGRES_PORT_FOR_STARTMARGIN, default 54329).
 
 pg_bin_dir() {
   local initdb
@@ -30,7 +30,7 @@ start_test_postgres() {
       return 1
     fi
   fi
-  port=${STARTMARGIN_TEST_POSTGRES_PORT:-54329}
+  port=${TEST_POSTGRES_PORT_FOR_STARTMARGIN:-54329}
   PG_TEST_DIR=$(mktemp -d /tmp/startmargin-pg.XXXXXX)
   if [ "$(id -u)" = 0 ]; then
     id postgres >/dev/null 2>&1 || useradd --system --home-dir "$PG_TEST_DIR" postgres
@@ -45,7 +45,7 @@ start_test_postgres() {
     -o "-c listen_addresses=127.0.0.1 -p $port -k $PG_TEST_DIR -c fsync=on -c max_connections=200" \
     start >/dev/null || { cat "$PG_TEST_DIR/log" >&2; return 1; }
   "${run_as[@]}" "$bin/createdb" -h 127.0.0.1 -p "$port" -U postgres startmargin_test || return 1
-  export STARTMARGIN_TEST_POSTGRES_URL="postgres://postgres@127.0.0.1:$port/startmargin_test"
+  export TEST_POSTGRES_URL_FOR_STARTMARGIN="postgres://postgres@127.0.0.1:$port/startmargin_test"
   echo "== PostgreSQL test cluster on 127.0.0.1:$port ($("$bin/postgres" --version))"
 }
 

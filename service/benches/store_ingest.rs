@@ -2,7 +2,7 @@
 //! 100 and 1000 attempts per commit, each commit also writing the vehicle's calibration with
 //! its version check (what a report batch does). SQLite on a temporary file (WAL,
 //! `synchronous = FULL`: every commit is on disk); PostgreSQL at
-//! `STARTMARGIN_TEST_POSTGRES_URL` when set (`. .ci/postgres.sh && start_test_postgres`),
+//! `TEST_POSTGRES_URL_FOR_STARTMARGIN` when set (`. .ci/postgres.sh && start_test_postgres`),
 //! skipped with a line otherwise. Not run in CI: `cargo bench -p startmargin-service --bench
 //! store_ingest`.
 
@@ -101,7 +101,7 @@ fn store_ingest(c: &mut Criterion) {
     };
     bench_backend(c, "sqlite", sqlite);
     let _ = std::fs::remove_dir_all(&dir);
-    match std::env::var("STARTMARGIN_TEST_POSTGRES_URL") {
+    match std::env::var("TEST_POSTGRES_URL_FOR_STARTMARGIN") {
         Ok(url) if !url.is_empty() => {
             let postgres = StoreConfig {
                 url,
@@ -110,7 +110,7 @@ fn store_ingest(c: &mut Criterion) {
             bench_backend(c, "postgres", postgres);
         }
         _ => eprintln!(
-            "store_ingest/postgres not run: STARTMARGIN_TEST_POSTGRES_URL is not set \
+            "store_ingest/postgres not run: TEST_POSTGRES_URL_FOR_STARTMARGIN is not set \
              (`. .ci/postgres.sh && start_test_postgres`)"
         ),
     }

@@ -3,7 +3,7 @@
 //! returned; the test SIGKILLs it mid-run, three times at different points, reopens the store
 //! and checks that every acknowledged attempt is stored and the vehicle calibration matches
 //! a whole number of batches. SQLite on a temporary file; PostgreSQL at
-//! `STARTMARGIN_TEST_POSTGRES_URL` (see `store_postgres.rs`). This checks a process crash;
+//! `TEST_POSTGRES_URL_FOR_STARTMARGIN` (see `store_postgres.rs`). This checks a process crash;
 //! an operating-system crash is covered by the configuration (SQLite `synchronous = FULL`,
 //! PostgreSQL's synchronous commit), which a test here cannot cut power to.
 
@@ -106,15 +106,15 @@ async fn sqlite_loses_no_acknowledged_attempt() {
 
 #[tokio::test]
 async fn postgres_loses_no_acknowledged_attempt() {
-    match std::env::var("STARTMARGIN_TEST_POSTGRES_URL") {
+    match std::env::var("TEST_POSTGRES_URL_FOR_STARTMARGIN") {
         Ok(url) if !url.is_empty() => check_no_acknowledged_loss(&url, "postgres").await,
         _ => {
             assert!(
                 std::env::var_os("CI").is_none(),
-                "STARTMARGIN_TEST_POSTGRES_URL is not set under CI: .ci/run starts PostgreSQL"
+                "TEST_POSTGRES_URL_FOR_STARTMARGIN is not set under CI: .ci/run starts PostgreSQL"
             );
             eprintln!(
-                "PostgreSQL tests not run: STARTMARGIN_TEST_POSTGRES_URL is not set. Install the \
+                "PostgreSQL tests not run: TEST_POSTGRES_URL_FOR_STARTMARGIN is not set. Install the \
                  postgresql package (apt-get install postgresql), then run \
                  `. .ci/postgres.sh && start_test_postgres` before cargo test."
             );
