@@ -129,16 +129,20 @@ async fn failures_teach_the_vehicle_its_pool_and_later_assessments() {
     assert_eq!(sc.observations, 0);
     assert_eq!(sc.pooled_observations, 5);
     assert!(sc.thermal_offset_k.unwrap().mean < 0.0);
-    // A prior shifted towards failure (and no wider than needed) predicts more no-starts
-    // wherever the defaults expect a start.
-    if defaults.no_start_pct < 50.0 {
-        assert!(
-            sibling.no_start_pct > defaults.no_start_pct,
-            "sibling {:.1} % vs defaults {:.1} %",
-            sibling.no_start_pct,
-            defaults.no_start_pct
-        );
-    }
+    // One vehicle's own fault moves its siblings' prior only a little (the pool bounds the pull
+    // of a vehicle far outside its archetype): towards failure, never past the vehicle itself.
+    let sibling_offset = sc.thermal_offset_k.unwrap().mean;
+    assert!(
+        sibling_offset > offset.mean,
+        "{sibling_offset} vs {}",
+        offset.mean
+    );
+    assert!(
+        sibling.no_start_pct >= defaults.no_start_pct,
+        "sibling {:.2} % vs defaults {:.2} %",
+        sibling.no_start_pct,
+        defaults.no_start_pct
+    );
 
     // Sending the same attempts again changes nothing.
     let again = t
