@@ -23,7 +23,16 @@ pub fn reliability_chart(title: &str, subtitle: &str, curves: &[Curve<'_>]) -> S
     let (x0, x1, y0, y1) = (90.0, 560.0, 90.0, 560.0);
     let mut svg = Svg::new(w, h);
     svg.bold((x0, 34.0), title, 18.0, Anchor::Start);
-    svg.text((x0, 58.0), subtitle, 12.0, Anchor::Start, "#555");
+    // One line per `\n` of the subtitle.
+    for (i, line) in subtitle.lines().enumerate() {
+        svg.text(
+            (x0, 58.0 + 15.0 * i as f64),
+            line,
+            12.0,
+            Anchor::Start,
+            "#555",
+        );
+    }
     let xs = Linear::new((0.0, 100.0), (x0, x1));
     let ys = Linear::new((0.0, 100.0), (y1, y0));
     for t in (0..=10).map(|i| f64::from(i) * 10.0) {

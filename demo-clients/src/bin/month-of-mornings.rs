@@ -139,7 +139,8 @@ async fn run(args: Args) -> anyhow::Result<()> {
     let path = args.out.join("reliability.svg");
     let title = "Predicted against observed no-starts — a month of mornings";
     let subtitle = format!(
-        "Mornings {}–{} ({} attempts): archetype defaults against the same attempts predicted with the calibration of the mornings before each.",
+        "Mornings {}–{} ({} attempts), each predicted before it was learned from:\n\
+         with the archetype defaults, and with the calibration of the mornings before it.",
         WARM_UP_MORNINGS + 1,
         month.len(),
         late.attempt_count
