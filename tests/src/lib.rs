@@ -75,6 +75,15 @@ pub fn loopback_config() -> Config {
     startmargin_service::server::loopback_config()
 }
 
+/// The URL of a fresh SQLite store under the temporary folder, for a server process of a test
+/// (no two processes share a store file).
+pub fn fresh_store_url() -> String {
+    static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let n = NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let dir = std::env::temp_dir().join(format!("startmargin-e2e-{}-{n}", std::process::id()));
+    format!("sqlite://{}", dir.join("starts.db").display())
+}
+
 /// A channel to a server on `addr`.
 pub async fn connect(addr: SocketAddr) -> anyhow::Result<Channel> {
     Ok(Channel::from_shared(format!("http://{addr}"))?

@@ -69,6 +69,8 @@ fn start(binary: &PathBuf, name: &str) -> Process {
     )
     .expect("write config");
     let child = Command::new(binary)
+        // A store of its own: no two server processes share an SQLite file.
+        .env("STARTMARGIN_STORE_URL", startmargin_e2e::fresh_store_url())
         .arg("--config")
         .arg(&config)
         .arg("serve")

@@ -39,6 +39,8 @@ impl Server {
             l.local_addr().expect("addr").port()
         };
         let child = Command::new(startmargin_e2e::startmargind_binary())
+            // A store of its own: no two server processes share an SQLite file.
+            .env("STARTMARGIN_STORE_URL", startmargin_e2e::fresh_store_url())
             .arg("serve")
             .env("STARTMARGIN_LISTEN", format!("127.0.0.1:{port}"))
             .env("STARTMARGIN_METRICS_LISTEN", "")

@@ -32,6 +32,8 @@ struct Process(Child);
 impl Process {
     async fn start(binary: &PathBuf, port: u16) -> Self {
         let child = Command::new(binary)
+            // A store of its own: no two server processes share an SQLite file.
+            .env("STARTMARGIN_STORE_URL", startmargin_e2e::fresh_store_url())
             .arg("serve")
             .env("STARTMARGIN_LISTEN", format!("127.0.0.1:{port}"))
             .env("STARTMARGIN_METRICS_LISTEN", "")
