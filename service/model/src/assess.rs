@@ -31,13 +31,13 @@ use crate::cranking::{self, CrankingInput, CrankingResult, Starter};
 use crate::error::{ModelError, check_range};
 use crate::evaporation;
 use crate::fuel::{self, ColdFlowProperties, FuelDescription};
-use crate::gel_risk::{self, FuelTemperatureSample, GelOutlook};
+use crate::gel_risk::{FuelTemperatureSample, GelOutlook};
 use crate::ignition::{self, DelayCorrelation};
 use crate::induction;
 use crate::learning::VehicleCalibration;
 use crate::oil::{self, SaeGrade};
 use crate::soak::{self, FilterMount, Forecast, ForecastHour, HeaterSchedule, ThermalNode};
-use shared::{Chain, NightContext, Soak};
+use shared::{Chain, Detail, NightContext, Soak, Stages};
 
 /// Version of the model, reported with every answer.
 pub const MODEL_VERSION: &str = concat!("startmargin-model ", env!("CARGO_PKG_VERSION"));
@@ -669,6 +669,105 @@ pub fn assess(night: &VehicleNight) -> Result<Assessment, ModelError> {
 /// Assesses one vehicle for one departure, sharing work with the vehicle's other runs through
 /// `ctx` (see [`shared`]): the same answer as [`assess`].
 pub fn assess_in(night: &VehicleNight, ctx: &mut NightContext) -> Result<Assessment, ModelError> {
+    let run = evaluate(night, ctx, Detail::Budget)?;
+    let budget = run.point.budget.ok_or(ModelError::Inconsistent(
+        "the heat budget was not computed for an assessment",
+    ))?;
+    let limiting_factor = limiting_factor_of(run.binding, &run.modes, &budget);
+    let margin_path = if night.options.include_margin_path {
+        let mut soak = ctx.soaks.soak(night, &run.nodes, &run.start)?;
+        margin_path(
+            night,
+            &mut soak,
+            &mut ctx.chains,
+            &run.start,
+            run.heater.as_ref(),
+            run.soc,
+        )?
+    } else {
+        Vec::new()
+    };
+    let block_heater_energy_j = run.heater.map_or(0.0, |h| {
+        let on_s = (h.on_until_s.min(night.departure_s) - h.on_from_s.max(run.start.at_s)).max(0.0);
+        h.power_w * on_s
+    });
+    Ok(Assessment {
+        margin_k: run.point.charge.margin_k(),
+        modes: run.modes,
+        binding: run.binding,
+        start_expected: run.modes.all_positive(),
+        limiting_factor,
+        budget,
+        cranking: run.point.cranking,
+        soaked: run.point.soaked,
+        cold_flow: run.cold_flow,
+        gel: run.gel,
+        fuel_path: run.fuel_path,
+        margin_path,
+        state_of_charge: run.soc,
+        block_heater_energy_j,
+    })
+}
+
+/// What a probe of a night needs (see [`Detail::Margins`]): its margins, verdict and cranking.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Probe {
+    /// Charge-temperature margin, K.
+    pub margin_k: f64,
+    /// Every failure mode's margin.
+    pub modes: ModeMargins,
+    /// Every mode has a positive margin.
+    pub start_expected: bool,
+    /// Cranking speed, rpm.
+    pub crank_rpm: f64,
+    /// State of charge used (0..1).
+    pub state_of_charge: f64,
+}
+
+impl From<&Assessment> for Probe {
+    fn from(a: &Assessment) -> Self {
+        Self {
+            margin_k: a.margin_k,
+            modes: a.modes,
+            start_expected: a.start_expected,
+            crank_rpm: a.cranking.result.crank_rpm,
+            state_of_charge: a.state_of_charge,
+        }
+    }
+}
+
+/// Probes a night (a sigma point, an action's outcome, a plug-in time): its margins exactly as
+/// [`assess_in`] gives them, without the heat budget's lines or the margin path.
+pub(crate) fn probe_in(night: &VehicleNight, ctx: &mut NightContext) -> Result<Probe, ModelError> {
+    let run = evaluate(night, ctx, Detail::Margins)?;
+    Ok(Probe {
+        margin_k: run.point.charge.margin_k(),
+        modes: run.modes,
+        start_expected: run.modes.all_positive(),
+        crank_rpm: run.point.cranking.result.crank_rpm,
+        state_of_charge: run.soc,
+    })
+}
+
+/// One run of the model at the departure, with what the assessment adds to it.
+struct Evaluated {
+    start: StartState,
+    nodes: Nodes,
+    heater: Option<HeaterSchedule>,
+    soc: f64,
+    point: StartPoint,
+    cold_flow: ColdFlowProperties,
+    gel: GelOutlook,
+    fuel_path: Vec<FuelTemperatureSample>,
+    modes: ModeMargins,
+    binding: FailureMode,
+}
+
+fn evaluate(
+    night: &VehicleNight,
+    ctx: &mut NightContext,
+    detail: Detail,
+) -> Result<Evaluated, ModelError> {
     validate(night)?;
     let start = start_state(night)?;
     let fuel_level = night.telemetry.fuel_level_fraction.unwrap_or(0.5);
@@ -685,16 +784,25 @@ pub fn assess_in(night: &VehicleNight, ctx: &mut NightContext) -> Result<Assessm
         heater.as_ref(),
         soc,
         night.departure_s,
+        detail,
     )?;
 
     // Fuel path, hourly from the start of the night, then the departure itself.
     let cold_flow = fuel::cold_flow_properties(&night.fuel.description)?;
-    let fuel_path = soak.fuel_path(&night.forecast.view(), &start, night.departure_s)?;
-    let gel = gel_risk::gel_outlook(&cold_flow, &fuel_path, night.departure_s)?;
+    let (gel, path) = soak.fuel_outlook(
+        &night.forecast.view(),
+        &start,
+        night.departure_s,
+        &cold_flow,
+    )?;
+    // Only an assessment shows the path.
+    let fuel_path = match detail {
+        Detail::Budget => path.into_owned(),
+        Detail::Margins => Vec::new(),
+    };
 
-    let margin_k = point.budget.margin_k();
     let modes = ModeMargins {
-        charge_k: margin_k,
+        charge_k: point.charge.margin_k(),
         cranking_rpm: if point.cranking.result.battery_frozen {
             -night.engine.min_start_speed_rpm
         } else {
@@ -703,42 +811,17 @@ pub fn assess_in(night: &VehicleNight, ctx: &mut NightContext) -> Result<Assessm
         battery_freeze_k: point.soaked.battery_t_k - battery::electrolyte_freezing_point_k(soc),
         fuel_flow_k: gel.margin_to_cfpp_k.min(gel.margin_to_pour_point_k),
     };
-    let binding = modes.binding();
-    let limiting_factor = limiting_factor_of(binding, &modes, &point.budget);
-    let start_expected = modes.all_positive();
-
-    let margin_path = if night.options.include_margin_path {
-        margin_path(
-            night,
-            &mut soak,
-            &mut ctx.chains,
-            &start,
-            heater.as_ref(),
-            soc,
-        )?
-    } else {
-        Vec::new()
-    };
-    let block_heater_energy_j = heater.map_or(0.0, |h| {
-        let on_s = (h.on_until_s.min(night.departure_s) - h.on_from_s.max(start.at_s)).max(0.0);
-        h.power_w * on_s
-    });
-
-    Ok(Assessment {
-        margin_k,
-        modes,
-        binding,
-        start_expected,
-        limiting_factor,
-        budget: point.budget,
-        cranking: point.cranking,
-        soaked: point.soaked,
+    Ok(Evaluated {
+        start,
+        nodes,
+        heater,
+        soc,
+        point,
         cold_flow,
         gel,
         fuel_path,
-        margin_path,
-        state_of_charge: soc,
-        block_heater_energy_j,
+        binding: modes.binding(),
+        modes,
     })
 }
 
@@ -777,7 +860,9 @@ fn state_of_charge(night: &VehicleNight) -> Result<f64, ModelError> {
 /// The start computation for a departure at `at_s`.
 #[derive(Debug, Clone, Copy, PartialEq)]
 struct StartPoint {
-    budget: HeatBudget,
+    charge: Charge,
+    /// The heat budget line by line (only for [`Detail::Budget`]).
+    budget: Option<HeatBudget>,
     cranking: CrankingSummary,
     soaked: SoakedState,
 }
@@ -789,6 +874,7 @@ fn start_point(
     heater: Option<&HeaterSchedule>,
     state_of_charge: f64,
     at_s: f64,
+    detail: Detail,
 ) -> Result<StartPoint, ModelError> {
     let f = night.forecast.view();
     let [engine_t_k, battery_t_k, fuel_tank_t_k, fuel_filter_t_k] =
@@ -839,11 +925,23 @@ fn start_point(
     // budget is then shown at the minimum starting speed (the best the starter would need to do).
     let crank_rpm = result.crank_rpm.max(engine.min_start_speed_rpm);
     let cetane = fuel::cetane_number(&night.fuel.description)?;
-    let chain = chains.chain(night, air_t_k, engine_t_k, crank_rpm, || {
-        compression_chain(night, air_t_k, engine_t_k, crank_rpm)
+    let chain = chains.chain(night, (air_t_k, engine_t_k, crank_rpm), detail, || {
+        compression_chain(night, air_t_k, engine_t_k, crank_rpm, detail)
     })?;
-    let budget = heat_budget(night, &chain, air_t_k, fuel_tank_t_k, crank_rpm, cetane)?;
+    let charge = igniting_charge(night, &chain, fuel_tank_t_k, crank_rpm, cetane)?;
+    let budget = match (detail, &chain.stages) {
+        (Detail::Budget, Some(stages)) => Some(heat_budget(
+            night,
+            &chain,
+            stages,
+            &charge,
+            air_t_k,
+            fuel_tank_t_k,
+        )?),
+        _ => None,
+    };
     Ok(StartPoint {
+        charge,
         budget,
         cranking,
         soaked,
@@ -886,46 +984,37 @@ pub fn leak_area_m2(engine: &EngineConfig) -> Result<f64, ModelError> {
     }
 }
 
-/// The compressions of one cranking state: the charge at intake valve closing, the ideal, walled
-/// and leaking compressions, and the one from the intake heater's warmer intake.
+/// The compressions of one cranking state: the charge at intake valve closing, the compression
+/// ignition sees (walls and leakage, from the intake heater's warmer intake when there is one) and,
+/// for a budget that is shown, the stages its lines are read from (walls alone, walls and leakage
+/// from the unheated intake).
 fn compression_chain(
     night: &VehicleNight,
     air_t_k: f64,
     wall_t_k: f64,
     crank_rpm: f64,
+    detail: Detail,
 ) -> Result<Chain, ModelError> {
     let engine = &night.engine;
     let intake_p_pa = night.forecast.barometric_pa;
-    let leak_area_m2 = engine.leak_area_m2;
     let ivc_t_k =
         induction::ivc_charge(&engine.geometry, crank_rpm, air_t_k, intake_p_pa, wall_t_k)?.ivc_t_k;
-    let base = CompressionInput {
+    let with_walls = CompressionInput {
         geometry: engine.geometry,
         crank_rpm,
         intake_t_k: ivc_t_k,
         intake_p_pa,
         wall_t_k,
         heat_transfer: calibration::WALL_HEAT_TRANSFER,
-        heat_transfer_multiplier: 0.0,
+        heat_transfer_multiplier: wall_multiplier(engine.combustion),
         leak_area_m2: 0.0,
         crankcase_p_pa: intake_p_pa,
     };
-    let (ideal_end_t_k, _) = air::isentropic_compression(
-        ivc_t_k,
-        intake_p_pa,
-        engine.geometry.effective_compression_ratio(),
-    )?;
-    let with_walls = CompressionInput {
-        heat_transfer_multiplier: wall_multiplier(engine.combustion),
-        ..base
-    };
-    let walls = compression::compress(&with_walls)?;
     let with_leak = CompressionInput {
-        leak_area_m2,
+        leak_area_m2: engine.leak_area_m2,
         ..with_walls
     };
-    let full = compression::compress(&with_leak)?;
-    let heated = if night.aids.intake_heater_w > 0.0 {
+    let heated_ivc_t_k = if night.aids.intake_heater_w > 0.0 {
         // The air stream is taken at a nominal cranking speed, not the actual one: otherwise a
         // weaker battery (slower cranking, less air) would earn a larger heater rise, and anything
         // that helps cranking would cost heater gain, which the trade does not see.
@@ -944,108 +1033,159 @@ fn compression_chain(
             air::cp_j_per_kg_k(air_t_k),
         )?;
         // The heated air passes the same port and cylinder walls: cold walls take part of it back.
-        let heated_ivc_t_k = induction::ivc_charge(
-            &engine.geometry,
-            crank_rpm,
-            (air_t_k + rise_k).min(400.0),
-            intake_p_pa,
-            wall_t_k,
-        )?
-        .ivc_t_k;
-        Some(compression::compress(&CompressionInput {
-            intake_t_k: heated_ivc_t_k,
-            ..with_leak
-        })?)
+        Some(
+            induction::ivc_charge(
+                &engine.geometry,
+                crank_rpm,
+                (air_t_k + rise_k).min(400.0),
+                intake_p_pa,
+                wall_t_k,
+            )?
+            .ivc_t_k,
+        )
     } else {
         None
     };
+    let heated = heated_ivc_t_k
+        .map(|intake_t_k| {
+            compression::compress(&CompressionInput {
+                intake_t_k,
+                ..with_leak
+            })
+        })
+        .transpose()?;
+    let (igniting, stages) = match (detail, heated) {
+        (Detail::Margins, Some(heated)) => (heated, None),
+        (Detail::Margins, None) => (compression::compress(&with_leak)?, None),
+        (Detail::Budget, heated) => {
+            let (ideal_end_t_k, _) = air::isentropic_compression(
+                ivc_t_k,
+                intake_p_pa,
+                engine.geometry.effective_compression_ratio(),
+            )?;
+            let walls = compression::compress(&with_walls)?;
+            let full = compression::compress(&with_leak)?;
+            let stages = Stages {
+                ideal_end_t_k,
+                walls,
+                full,
+            };
+            (heated.unwrap_or(full), Some(stages))
+        }
+    };
     Ok(Chain {
         ivc_t_k,
-        ideal_end_t_k,
-        walls,
-        full,
-        heated,
+        igniting,
+        stages,
     })
 }
 
-/// The sequential heat budget at one cranking state, from its compression chain.
-fn heat_budget(
+/// The igniting charge at one cranking state, from its compression chain: its predicted
+/// temperature and the temperature ignition needs.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Charge {
+    /// Evaporation cooling of the igniting charge, K.
+    evaporation_loss_k: f64,
+    /// Glow plug gain, K.
+    glow_plug_gain_k: f64,
+    /// Predicted igniting-charge temperature at TDC, K.
+    predicted_end_t_k: f64,
+    /// Required temperature, K.
+    required_t_k: f64,
+}
+
+impl Charge {
+    fn margin_k(&self) -> f64 {
+        self.predicted_end_t_k - self.required_t_k
+    }
+}
+
+/// The igniting charge at one cranking state: the igniting compression less the fuel's
+/// evaporation, plus the glow plugs and the vehicle's calibrated offset, against the temperature
+/// ignition needs at the igniting compression's end pressure.
+fn igniting_charge(
     night: &VehicleNight,
     chain: &Chain,
-    air_t_k: f64,
     fuel_t_k: f64,
     crank_rpm: f64,
     cetane_number: f64,
-) -> Result<HeatBudget, ModelError> {
+) -> Result<Charge, ModelError> {
     let engine = &night.engine;
-    let intake_p_pa = night.forecast.barometric_pa;
-    let Chain {
-        ivc_t_k,
-        ideal_end_t_k,
-        walls,
-        full,
-        heated,
-    } = *chain;
-    let walls_t_k = charge_t_k(&walls, engine.combustion);
-    let full_t_k = charge_t_k(&full, engine.combustion);
-    let evaporation_loss_k = evaporation::evaporation_cooling_k(
-        calibration::CRANKING_AIR_FUEL_RATIO,
-        fuel_t_k,
-        full_t_k,
-        air::cv_j_per_kg_k(full_t_k),
-    )?;
-
-    // Intake heater: the same chain from a warmer intake; its gain is the difference it makes.
-    let (intake_heater_gain_k, tdc) = match heated {
-        Some(heated) => {
-            let heated_t_k = charge_t_k(&heated, engine.combustion);
-            let heated_evap_k = evaporation::evaporation_cooling_k(
-                calibration::CRANKING_AIR_FUEL_RATIO,
-                fuel_t_k,
-                heated_t_k,
-                air::cv_j_per_kg_k(heated_t_k),
-            )?;
-            (
-                (heated_t_k - heated_evap_k) - (full_t_k - evaporation_loss_k),
-                heated,
-            )
-        }
-        None => (0.0, full),
-    };
+    let igniting_t_k = charge_t_k(&chain.igniting, engine.combustion);
+    let evaporation_loss_k = evaporation_loss_k(fuel_t_k, igniting_t_k)?;
     let glow_plug_gain_k = match night.aids.glow_plugs {
         Some(g) => aids::glow_plug_gain_k(&g, night.aids.glow_preheat_s)?,
         None => 0.0,
     };
-    let wall_loss_k = ideal_end_t_k - walls_t_k;
-    let leakage_loss_k = walls_t_k - full_t_k;
-    let calibration_offset_k = night.options.calibration.thermal_offset_k.mean;
-    let predicted_end_t_k = ideal_end_t_k - wall_loss_k - leakage_loss_k - evaporation_loss_k
-        + intake_heater_gain_k
+    let predicted_end_t_k = igniting_t_k - evaporation_loss_k
         + glow_plug_gain_k
-        + calibration_offset_k;
+        + night.options.calibration.thermal_offset_k.mean;
     let window_s = ignition::crank_window_s(engine.ignition_window_deg, crank_rpm);
     let required_t_k = ignition::required_temperature_k(
         night.options.delay_correlation,
-        tdc.tdc_p_pa,
+        chain.igniting.tdc_p_pa,
         window_s,
         cetane_number,
         engine.geometry.mean_piston_speed_mps(crank_rpm),
         crank_rpm,
     )?;
-    Ok(HeatBudget {
-        intake_t_k: air_t_k,
-        ivc_t_k,
-        ideal_end_t_k,
-        wall_loss_k,
-        leakage_loss_k,
+    Ok(Charge {
         evaporation_loss_k,
-        intake_heater_gain_k,
         glow_plug_gain_k,
-        calibration_offset_k,
         predicted_end_t_k,
         required_t_k,
-        end_p_pa: tdc.tdc_p_pa,
-        compression_gauge_pa: full.peak_p_pa - intake_p_pa,
+    })
+}
+
+/// Evaporation cooling of a charge at `charge_t_k` by the cranking fuel at `fuel_t_k`, K.
+fn evaporation_loss_k(fuel_t_k: f64, charge_t_k: f64) -> Result<f64, ModelError> {
+    evaporation::evaporation_cooling_k(
+        calibration::CRANKING_AIR_FUEL_RATIO,
+        fuel_t_k,
+        charge_t_k,
+        air::cv_j_per_kg_k(charge_t_k),
+    )
+}
+
+/// The sequential heat budget at one cranking state, line by line, from its compression chain's
+/// stages and the igniting charge: the lines sum to the predicted temperature (within rounding).
+fn heat_budget(
+    night: &VehicleNight,
+    chain: &Chain,
+    stages: &Stages,
+    charge: &Charge,
+    air_t_k: f64,
+    fuel_t_k: f64,
+) -> Result<HeatBudget, ModelError> {
+    let engine = &night.engine;
+    let walls_t_k = charge_t_k(&stages.walls, engine.combustion);
+    let full_t_k = charge_t_k(&stages.full, engine.combustion);
+    // The evaporation line is that of the unheated charge; the intake heater's gain is the
+    // difference the warmer intake makes to the evaporated charge.
+    let (evaporation_loss_k, intake_heater_gain_k) = if night.aids.intake_heater_w > 0.0 {
+        let unheated_k = evaporation_loss_k(fuel_t_k, full_t_k)?;
+        let igniting_t_k = charge_t_k(&chain.igniting, engine.combustion);
+        (
+            unheated_k,
+            (igniting_t_k - charge.evaporation_loss_k) - (full_t_k - unheated_k),
+        )
+    } else {
+        (charge.evaporation_loss_k, 0.0)
+    };
+    Ok(HeatBudget {
+        intake_t_k: air_t_k,
+        ivc_t_k: chain.ivc_t_k,
+        ideal_end_t_k: stages.ideal_end_t_k,
+        wall_loss_k: stages.ideal_end_t_k - walls_t_k,
+        leakage_loss_k: walls_t_k - full_t_k,
+        evaporation_loss_k,
+        intake_heater_gain_k,
+        glow_plug_gain_k: charge.glow_plug_gain_k,
+        calibration_offset_k: night.options.calibration.thermal_offset_k.mean,
+        predicted_end_t_k: charge.predicted_end_t_k,
+        required_t_k: charge.required_t_k,
+        end_p_pa: chain.igniting.tdc_p_pa,
+        compression_gauge_pa: stages.full.peak_p_pa - night.forecast.barometric_pa,
     })
 }
 
@@ -1070,10 +1210,10 @@ fn margin_path(
             continue;
         }
         let at_s = at_s.min(f.covered_until_s());
-        let p = start_point(night, soak, chains, heater, soc, at_s)?;
+        let p = start_point(night, soak, chains, heater, soc, at_s, Detail::Margins)?;
         out.push(MarginPoint {
             at_s,
-            margin_k: p.budget.margin_k(),
+            margin_k: p.charge.margin_k(),
         });
     }
     Ok(out)

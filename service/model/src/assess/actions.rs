@@ -12,8 +12,10 @@
 //! to the vehicle and equipment manufacturer, local electrical codes and licensed practice.
 
 use super::shared::NightContext;
-use super::uncertainty::{Method, NoStartProbability, no_start_probability_in};
-use super::{Assessment, FailureMode, LimitingFactor, VehicleNight, assess_in};
+use super::uncertainty::{
+    Method, NoStartProbability, estimated_probability, misses_target_for_sure, probability_around,
+};
+use super::{Assessment, FailureMode, LimitingFactor, Probe, VehicleNight, probe_in};
 use crate::error::{ModelError, check_range};
 use crate::fuel::{AdditiveTreatment, FuelBase};
 use crate::gel_risk::{self, FuelAdvice, FuelAdviceKind};
@@ -135,7 +137,7 @@ pub fn normal_quantile(p: f64) -> f64 {
 /// A night with a change applied, assessed and its probability computed.
 #[derive(Debug, Clone)]
 pub(super) struct Outcome {
-    pub(super) assessment: Assessment,
+    pub(super) probe: Probe,
     pub(super) probability: NoStartProbability,
 }
 
@@ -153,12 +155,9 @@ fn outcome_with(
     if let Some(o) = ctx.outcome(&n) {
         return Ok(o.clone());
     }
-    let assessment = assess_in(&n, ctx)?;
-    let probability = no_start_probability_in(&n, &assessment, method, ctx)?;
-    let o = Outcome {
-        assessment,
-        probability,
-    };
+    let probe = probe_in(&n, ctx)?;
+    let probability = probability_around(&n, &probe.modes, probe.state_of_charge, method, ctx)?;
+    let o = Outcome { probe, probability };
     ctx.keep_outcome(n, o.clone());
     Ok(o)
 }
@@ -198,10 +197,18 @@ pub struct HeaterPlan {
 
 /// Halvings of the plug-in search: a night of about 14 h resolves to under a minute.
 const PLUG_IN_HALVINGS: u32 = 10;
+/// Rounds of the plug-in search's estimate before it bisects on the real probability alone.
+const SURROGATE_ROUNDS: u32 = 3;
 
-/// Block heater: the latest plug-in time whose no-start probability meets the target, by
-/// bisection on the plug-in time (a later plug-in never lowers the probability: tested). `None`
-/// when the vehicle has no heater or meets the target without one.
+/// Block heater: the latest plug-in time whose no-start probability meets the target, to the
+/// night's span over 2^10 (a later plug-in never lowers the probability: tested). `None` when the
+/// vehicle has no heater or meets the target without one.
+///
+/// The search first brackets the time by bisection on an estimated probability (each time's
+/// central margins with the spreads of the all-night and no-heater ends, interpolated: one
+/// model run a time), then confirms the bracket with the real probability on both sides and
+/// bisects that down to the resolution: the plan's probability is always the real one at the
+/// time it names, and the time is within the resolution of the latest one that meets the target.
 pub fn plan_block_heater(
     night: &VehicleNight,
     policy: &ActionPolicy,
@@ -236,29 +243,87 @@ pub fn plan_block_heater_in(
         plug_in_s: t,
         p_without: without.probability.probability,
         p_with: with.probability.probability,
-        margin_without_k: without.assessment.margin_k,
-        margin_with_k: with.assessment.margin_k,
+        margin_without_k: without.probe.margin_k,
+        margin_with_k: with.probe.margin_k,
         meets_target,
-        fixes_verdict: !without.assessment.start_expected && with.assessment.start_expected,
+        fixes_verdict: !without.probe.start_expected && with.probe.start_expected,
     };
     let all_night = plugged_at(ctx, start_s)?;
     if all_night.probability.probability > target {
         return Ok(Some(plan(start_s, &all_night, false)));
     }
-    let (mut early, mut early_outcome, mut late) = (start_s, all_night, dep_s);
-    for _ in 0..PLUG_IN_HALVINGS {
-        let mid = 0.5 * (early + late);
-        // A time whose central margins alone already miss the target needs no sigma points:
-        // the bisection only moves its late end there.
-        if ctx.shares() {
-            let mut n = night.clone();
-            n.options.include_margin_path = false;
-            n.block_heater_plan = Some((mid, dep_s));
-            let centre = assess_in(&n, ctx)?;
-            if super::uncertainty::misses_target_for_sure(&n, &centre, target) {
-                late = mid;
+    // The search resolves the plug-in time to the night's span over 2^PLUG_IN_HALVINGS.
+    let grid = PlugInGrid {
+        start_s,
+        resolution_s: (dep_s - start_s) / f64::from(1_u32 << PLUG_IN_HALVINGS),
+    };
+    let resolution_s = grid.resolution_s;
+    let (mut early, mut early_outcome) = (start_s, all_night);
+    let (mut late, mut late_spreads) = (dep_s, without.probability.mode_spreads);
+    // The spreads of the real probability last computed, and where.
+    let mut nearest = None;
+    // 1. Narrow the bracket cheaply, in a few rounds: bisection on the probability estimated from
+    //    each plug-in time's central margins (one model run a time) with spreads taken from real
+    //    probabilities nearby (the spreads change slowly with the plug-in time, the margins do
+    //    not), then the real probability at the estimate and one resolution after it.
+    for _ in 0..SURROGATE_ROUNDS {
+        if grid.inside(early, late).is_none() {
+            break;
+        }
+        let estimate_s = {
+            let (mut lo, mut hi) = (early, late);
+            for _ in 0..PLUG_IN_HALVINGS {
+                let Some(mid) = grid.inside(lo, hi) else {
+                    break;
+                };
+                let spreads: [f64; 4] = match nearest {
+                    Some(spreads) => spreads,
+                    None => {
+                        // First round: between the two ends, by time.
+                        let w = (mid - early) / (late - early);
+                        let e = early_outcome.probability.mode_spreads;
+                        std::array::from_fn(|k| e[k] + w * (late_spreads[k] - e[k]))
+                    }
+                };
+                let n = plugged_in(night, mid);
+                let centre = probe_in(&n, ctx)?;
+                if estimated_probability(&n, &centre, &spreads) <= target {
+                    lo = mid;
+                } else {
+                    hi = mid;
+                }
+            }
+            lo
+        };
+        // 2. The real probability at the estimate and one resolution later: when the estimate
+        //    is right, the bracket is then one resolution wide.
+        for t in [estimate_s, estimate_s + resolution_s] {
+            if t <= early || t >= late {
                 continue;
             }
+            let o = plugged_at(ctx, t)?;
+            nearest = Some(o.probability.mode_spreads);
+            if o.probability.probability <= target {
+                (early, early_outcome) = (t, o);
+            } else {
+                (late, late_spreads) = (t, o.probability.mode_spreads);
+                break;
+            }
+        }
+    }
+    // 3. Bisection on the real probability down to the resolution (at most as many halvings as
+    //    the whole night needs).
+    for _ in 0..PLUG_IN_HALVINGS {
+        let Some(mid) = grid.inside(early, late) else {
+            break;
+        };
+        // A time whose central margins alone already miss the target needs no sigma points:
+        // the bisection only moves its late end there.
+        let n = plugged_in(night, mid);
+        let centre = probe_in(&n, ctx)?;
+        if misses_target_for_sure(&n, &centre, target) {
+            late = mid;
+            continue;
         }
         let o = plugged_at(ctx, mid)?;
         if o.probability.probability <= target {
@@ -268,6 +333,34 @@ pub fn plan_block_heater_in(
         }
     }
     Ok(Some(plan(early, &early_outcome, true)))
+}
+
+/// The plug-in times the search may name: the night's start plus whole resolutions.
+struct PlugInGrid {
+    start_s: f64,
+    resolution_s: f64,
+}
+
+impl PlugInGrid {
+    /// The grid time nearest the middle of (lo, hi), strictly inside; `None` once the bracket
+    /// is one resolution wide (or the span is not positive).
+    fn inside(&self, lo_s: f64, hi_s: f64) -> Option<f64> {
+        let to_steps = |t: f64| ((t - self.start_s) / self.resolution_s).round();
+        let (lo, hi) = (to_steps(lo_s), to_steps(hi_s));
+        if !(self.resolution_s > 0.0 && hi - lo >= 2.0) {
+            return None;
+        }
+        let mid = (0.5 * (lo + hi)).floor();
+        Some(self.start_s + mid * self.resolution_s)
+    }
+}
+
+/// `night` with its block heater plugged in from `plug_in_s` to the departure, no margin path.
+fn plugged_in(night: &VehicleNight, plug_in_s: f64) -> VehicleNight {
+    let mut n = night.clone();
+    n.options.include_margin_path = false;
+    n.block_heater_plan = Some((plug_in_s, n.departure_s));
+    n
 }
 
 fn hours_minutes(s: f64) -> String {
@@ -310,11 +403,11 @@ pub fn recommend_in(
         kind,
         summary,
         no_start_after: o.probability.probability,
-        expected_margin_gain_k: o.assessment.margin_k - base_k,
+        expected_margin_gain_k: o.probe.margin_k - base_k,
         act_by_s,
         energy_j: 0.0,
         caution: Some(caution),
-        fixes_hard_failure: !a.start_expected && o.assessment.start_expected,
+        fixes_hard_failure: !a.start_expected && o.probe.start_expected,
         tonight,
     };
     let helps = |o: &Outcome| o.probability.probability < p.probability - 1e-4;
@@ -442,13 +535,13 @@ pub fn recommend_in(
                 hot: if night.oil.hot >= 40 { 40 } else { 30 },
             };
             let o = outcome_with(night, method, ctx, |n| n.oil = lighter)?;
-            if o.assessment.cranking.result.crank_rpm > a.cranking.result.crank_rpm + 5.0 {
+            if o.probe.crank_rpm > a.cranking.result.crank_rpm + 5.0 {
                 out.push(action(
                     ActionKind::LighterOil,
                     format!(
                         "At the next service use 5W-{} if the engine maker approves it: it cranks {:.0} rpm faster on a night like this.",
                         lighter.hot,
-                        o.assessment.cranking.result.crank_rpm - a.cranking.result.crank_rpm
+                        o.probe.crank_rpm - a.cranking.result.crank_rpm
                     ),
                     &o,
                     None,
@@ -540,7 +633,7 @@ fn fuel_action(
         kind,
         summary: f.note.to_string(),
         no_start_after: o.probability.probability,
-        expected_margin_gain_k: o.assessment.margin_k - a.margin_k,
+        expected_margin_gain_k: o.probe.margin_k - a.margin_k,
         act_by_s: if tonight {
             Some(f.act_before_s.unwrap_or(night.departure_s))
         } else {
@@ -548,7 +641,7 @@ fn fuel_action(
         },
         energy_j: 0.0,
         caution: Some(caution),
-        fixes_hard_failure: !a.start_expected && o.assessment.start_expected,
+        fixes_hard_failure: !a.start_expected && o.probe.start_expected,
         tonight,
     }))
 }

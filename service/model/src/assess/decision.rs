@@ -12,7 +12,7 @@ use super::actions::{self, Action, ActionPolicy, HeaterPlan};
 use super::outlook::{OutlookThresholds, StartOutlook};
 use super::shared::NightContext;
 use super::uncertainty::{self, Method, NoStartProbability};
-use super::{Assessment, LimitingFactor, VehicleNight, assess_in, cause_of};
+use super::{Assessment, LimitingFactor, Probe, VehicleNight, assess_in, cause_of};
 use crate::error::ModelError;
 
 /// The operator's decision policy.
@@ -83,10 +83,7 @@ pub fn decide_in(
     ctx.keep_outcome(
         bare,
         actions::Outcome {
-            assessment: Assessment {
-                margin_path: Vec::new(),
-                ..assessment.clone()
-            },
+            probe: Probe::from(&assessment),
             probability,
         },
     );

@@ -24,14 +24,18 @@ use crate::archetypes::EngineConfig;
 use crate::assess::AssessOptions;
 use crate::compression::CompressionResult;
 use crate::error::ModelError;
-use crate::gel_risk::FuelTemperatureSample;
+use crate::fuel::ColdFlowProperties;
+use crate::gel_risk::{self, FuelTemperatureSample, GelOutlook};
 use crate::soak::{self, Forecast, ForecastHour, HeaterSchedule, SoakTrace};
+use std::borrow::Cow;
 
 /// Most distinct thermal inputs kept (a decision needs about a dozen: the central night, the two
 /// forecast points, shelter and filter changes with their own forecast points).
 const MAX_THERMAL_ENTRIES: usize = 16;
 /// Most compression chains kept (a decision with a heater search computes about a hundred).
 const MAX_CHAINS: usize = 256;
+/// Most gel outlooks kept per soak (the fuel's sigma points and actions need a few).
+const MAX_GEL_OUTLOOKS: usize = 4;
 /// Most whole outcomes kept.
 const MAX_OUTCOMES: usize = 32;
 
@@ -66,11 +70,6 @@ impl NightContext {
             outcomes: Vec::new(),
             unshared: true,
         }
-    }
-
-    /// Whether work is shared (false for the unshared reference).
-    pub(super) fn shares(&self) -> bool {
-        !self.unshared
     }
 
     /// A kept outcome of exactly this night.
@@ -137,6 +136,8 @@ impl Soaks {
                     battery: trace(&nodes.battery, start.battery_t_k)?,
                     tank: trace(&nodes.tank, start.tank_t_k)?,
                     filter: trace(&nodes.filter, start.filter_t_k)?,
+                    fuel_path: None,
+                    gels: Vec::new(),
                 };
                 if self.entries.len() < MAX_THERMAL_ENTRIES {
                     self.entries.push(entry);
@@ -163,14 +164,14 @@ pub(super) struct Chains {
 }
 
 impl Chains {
-    /// The compression chain at (air, wall, cranking speed) of `night`'s engine: a kept one, or
-    /// `compute`'s.
+    /// The compression chain at (air, wall, cranking speed) of `night`'s engine with at least
+    /// `detail`: a kept one, or `compute`'s (a kept chain without the stages a budget needs is
+    /// replaced by one with them).
     pub(super) fn chain(
         &mut self,
         night: &VehicleNight,
-        air_t_k: f64,
-        wall_t_k: f64,
-        crank_rpm: f64,
+        (air_t_k, wall_t_k, crank_rpm): (f64, f64, f64),
+        detail: Detail,
         compute: impl FnOnce() -> Result<Chain, ModelError>,
     ) -> Result<Chain, ModelError> {
         if self.unshared {
@@ -192,8 +193,15 @@ impl Chains {
         }
         // Bit patterns: a kept chain is reused only for exactly the same inputs.
         let key = ChainKey([air_t_k.to_bits(), wall_t_k.to_bits(), crank_rpm.to_bits()]);
-        if let Some((_, c)) = self.entries.iter().rev().find(|(k, _)| *k == key) {
-            return Ok(*c);
+        let kept = self.entries.iter().rposition(|(k, _)| *k == key);
+        if let Some(i) = kept {
+            let c = self.entries[i].1;
+            if c.stages.is_some() || detail == Detail::Margins {
+                return Ok(c);
+            }
+            let c = compute()?;
+            self.entries[i].1 = c;
+            return Ok(c);
         }
         let c = compute()?;
         if self.entries.len() < MAX_CHAINS {
@@ -223,14 +231,33 @@ struct ChainKey([u64; 3]);
 pub(super) struct Chain {
     /// Charge temperature at intake valve closing, K.
     pub ivc_t_k: f64,
+    /// The compression ignition sees: with walls and leakage, from the intake heater's warmer
+    /// intake when there is one.
+    pub igniting: CompressionResult,
+    /// The stages the heat budget's lines are read from; only for a run whose budget is shown.
+    pub stages: Option<Stages>,
+}
+
+/// The stages of a compression chain behind the heat budget's lines.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct Stages {
     /// Ideal isentropic end temperature, K.
     pub ideal_end_t_k: f64,
-    /// With wall heat transfer.
+    /// With wall heat transfer only.
     pub walls: CompressionResult,
-    /// With walls and leakage.
+    /// With walls and leakage, from the unheated intake.
     pub full: CompressionResult,
-    /// From the intake heater's warmer intake, when there is one.
-    pub heated: Option<CompressionResult>,
+}
+
+/// How much of a run is needed: everything (the assessment a caller reads), or only its margins
+/// (a probe: a sigma point, an action's outcome, a plug-in time, a point of the margin path, whose
+/// heat budget nobody reads; it skips the compressions that only split the budget into lines).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Detail {
+    /// The heat budget line by line.
+    Budget,
+    /// The margins only.
+    Margins,
 }
 
 /// What the soak depends on besides the forecast hours.
@@ -252,6 +279,10 @@ pub(super) struct ThermalEntry {
     pub battery: SoakTrace,
     pub tank: SoakTrace,
     pub filter: SoakTrace,
+    /// The fuel's temperature path, once asked for.
+    fuel_path: Option<Vec<FuelTemperatureSample>>,
+    /// Gel outlooks of the path for the last cold-flow properties asked for.
+    gels: Vec<(ColdFlowProperties, GelOutlook)>,
 }
 
 /// How an assessment gets its node temperatures.
@@ -298,62 +329,101 @@ impl Soak<'_> {
         }
     }
 
-    /// Fuel temperatures at every forecast step end after the start, and at departure.
-    pub(super) fn fuel_path(
+    /// The fuel's gel outlook at departure and its temperature path (every forecast step end
+    /// after the start, and the departure). A kept soak keeps the path, and the outlooks of the
+    /// last few cold-flow properties asked for: the plug-in times, glow-plug and battery changes
+    /// leave the fuel's soak as it is.
+    pub(super) fn fuel_outlook(
         &mut self,
         f: &Forecast<'_>,
         start: &StartState,
         departure_s: f64,
-    ) -> Result<Vec<FuelTemperatureSample>, ModelError> {
-        let mut path = Vec::with_capacity(f.hours.len() + 2);
-        let mut sample = FuelTemperatureSample {
-            at_s: start.at_s,
-            tank_t_k: start.tank_t_k,
-            line_t_k: super::line_t_k(start.tank_t_k, start.filter_t_k),
-            filter_t_k: start.filter_t_k,
+        cold_flow: &ColdFlowProperties,
+    ) -> Result<(GelOutlook, Cow<'_, [FuelTemperatureSample]>), ModelError> {
+        match self {
+            Soak::Direct { nodes, .. } => {
+                // Exact piecewise solution: chaining from the previous sample equals solving
+                // from the start.
+                let path = fuel_path(f, start, departure_s, |from, at_s| {
+                    Ok((
+                        soak::node_temperature_k(
+                            &nodes.tank,
+                            from.tank_t_k,
+                            from.at_s,
+                            f,
+                            None,
+                            at_s,
+                        )?,
+                        soak::node_temperature_k(
+                            &nodes.filter,
+                            from.filter_t_k,
+                            from.at_s,
+                            f,
+                            None,
+                            at_s,
+                        )?,
+                    ))
+                })?;
+                let gel = gel_risk::gel_outlook(cold_flow, &path, departure_s)?;
+                Ok((gel, Cow::Owned(path)))
+            }
+            Soak::Traced(e) => {
+                if e.fuel_path.is_none() {
+                    let (tank, filter) = (&mut e.tank, &mut e.filter);
+                    let path = fuel_path(f, start, departure_s, |_, at_s| {
+                        Ok((tank.at_k(f, None, at_s)?, filter.at_k(f, None, at_s)?))
+                    })?;
+                    e.fuel_path = Some(path);
+                }
+                let path = e.fuel_path.as_deref().unwrap_or(&[]);
+                let gel = match e.gels.iter().find(|(c, _)| c == cold_flow) {
+                    Some((_, gel)) => *gel,
+                    None => {
+                        let gel = gel_risk::gel_outlook(cold_flow, path, departure_s)?;
+                        if e.gels.len() >= MAX_GEL_OUTLOOKS {
+                            e.gels.remove(0);
+                        }
+                        e.gels.push((*cold_flow, gel));
+                        gel
+                    }
+                };
+                Ok((gel, Cow::Borrowed(path)))
+            }
+        }
+    }
+}
+
+/// The fuel temperature path from the night's start: `next(previous sample, at_s)` gives the
+/// (tank, filter) temperatures at each forecast step end after the start and at departure.
+fn fuel_path(
+    f: &Forecast<'_>,
+    start: &StartState,
+    departure_s: f64,
+    mut next: impl FnMut(&FuelTemperatureSample, f64) -> Result<(f64, f64), ModelError>,
+) -> Result<Vec<FuelTemperatureSample>, ModelError> {
+    let mut path = Vec::with_capacity(f.hours.len() + 2);
+    let mut sample = FuelTemperatureSample {
+        at_s: start.at_s,
+        tank_t_k: start.tank_t_k,
+        line_t_k: super::line_t_k(start.tank_t_k, start.filter_t_k),
+        filter_t_k: start.filter_t_k,
+    };
+    path.push(sample);
+    let mut k = ((start.at_s - f.start_s) / f.step_s).floor() as usize + 1;
+    loop {
+        let next_s = (f.start_s + k as f64 * f.step_s).min(departure_s);
+        if next_s <= sample.at_s {
+            break;
+        }
+        let (tank_t_k, filter_t_k) = next(&sample, next_s)?;
+        sample = FuelTemperatureSample {
+            at_s: next_s,
+            tank_t_k,
+            line_t_k: super::line_t_k(tank_t_k, filter_t_k),
+            filter_t_k,
         };
         path.push(sample);
-        let mut k = ((start.at_s - f.start_s) / f.step_s).floor() as usize + 1;
-        loop {
-            let next_s = (f.start_s + k as f64 * f.step_s).min(departure_s);
-            if next_s <= sample.at_s {
-                break;
-            }
-            let (tank_t_k, filter_t_k) = match self {
-                // Exact piecewise solution: chaining from the previous sample equals solving from
-                // the start.
-                Soak::Direct { nodes, .. } => (
-                    soak::node_temperature_k(
-                        &nodes.tank,
-                        sample.tank_t_k,
-                        sample.at_s,
-                        f,
-                        None,
-                        next_s,
-                    )?,
-                    soak::node_temperature_k(
-                        &nodes.filter,
-                        sample.filter_t_k,
-                        sample.at_s,
-                        f,
-                        None,
-                        next_s,
-                    )?,
-                ),
-                Soak::Traced(e) => (
-                    e.tank.at_k(f, None, next_s)?,
-                    e.filter.at_k(f, None, next_s)?,
-                ),
-            };
-            sample = FuelTemperatureSample {
-                at_s: next_s,
-                tank_t_k,
-                line_t_k: super::line_t_k(tank_t_k, filter_t_k),
-                filter_t_k,
-            };
-            path.push(sample);
-            k += 1;
-        }
-        Ok(path)
+        k += 1;
     }
+    Ok(path)
 }

@@ -22,7 +22,7 @@
 //! Deterministic: the same night and key always give the same probability.
 
 use super::shared::NightContext;
-use super::{Assessment, FailureMode, VehicleNight, assess, assess_in};
+use super::{Assessment, FailureMode, ModeMargins, Probe, VehicleNight, assess, probe_in};
 use crate::error::ModelError;
 use crate::fuel::{FuelBase, cold_flow_properties};
 
@@ -279,16 +279,27 @@ pub fn no_start_probability_in(
     method: Method,
     ctx: &mut NightContext,
 ) -> Result<NoStartProbability, ModelError> {
+    probability_around(night, &centre.modes, centre.state_of_charge, method, ctx)
+}
+
+/// The no-start probability around a night's central margins `centre` (its state of charge
+/// `soc0`): the sigma points or samples are probes (margins only, see `assess::probe_in`).
+pub(super) fn probability_around(
+    night: &VehicleNight,
+    centre: &ModeMargins,
+    soc0: f64,
+    method: Method,
+    ctx: &mut NightContext,
+) -> Result<NoStartProbability, ModelError> {
     let u = uncertainties(night);
-    let soc0 = centre.state_of_charge;
     let mut variance = [0.0_f64; 4];
     let mut axis_variance = [[0.0_f64; DIMENSIONS]; 4];
     let (runs, standard_error_scale) = match method {
         Method::SigmaPoints => {
             let spread = 3.0_f64.sqrt();
             for i in 0..DIMENSIONS {
-                let plus = assess_in(&perturbed(night, &u, &axis(i, spread), soc0)?, ctx)?;
-                let minus = assess_in(&perturbed(night, &u, &axis(i, -spread), soc0)?, ctx)?;
+                let plus = probe_in(&perturbed(night, &u, &axis(i, spread), soc0)?, ctx)?;
+                let minus = probe_in(&perturbed(night, &u, &axis(i, -spread), soc0)?, ctx)?;
                 for ((mode, axes), total) in FailureMode::ALL
                     .iter()
                     .zip(axis_variance.iter_mut())
@@ -313,7 +324,7 @@ pub fn no_start_probability_in(
                     health: rng.normal(),
                     fuel: rng.normal(),
                 };
-                let a = assess_in(&perturbed(night, &u, &p, soc0)?, ctx)?;
+                let a = probe_in(&perturbed(night, &u, &p, soc0)?, ctx)?;
                 for (k, mode) in FailureMode::ALL.iter().enumerate() {
                     let m = a.modes.get(*mode);
                     sum[k] += m;
@@ -333,13 +344,7 @@ pub fn no_start_probability_in(
     for (k, mode) in FailureMode::ALL.iter().enumerate() {
         let sigma = calibrated_model_sigma(night, *mode);
         spreads[k] = (sigma * sigma + variance[k]).sqrt();
-        let m = centre.modes.get(*mode);
-        // Below zero the vehicle fails at its central inputs: the inputs' spread may not pull the
-        // probability back towards 50 % (a colder night would otherwise read as less likely to
-        // fail, its larger spread outweighing its lower margin); the model's own error alone
-        // applies. Continuous at zero, monotone in the margin on both sides.
-        let s = if m < 0.0 { sigma } else { spreads[k] };
-        mode_probabilities[k] = normal_cdf(-m / s);
+        mode_probabilities[k] = mode_probability(centre.get(*mode), sigma, spreads[k]);
     }
     let mut b = 0;
     for k in 1..4 {
@@ -348,7 +353,7 @@ pub fn no_start_probability_in(
         }
     }
     let binding = FailureMode::ALL[b];
-    let binding_margin = centre.modes.get(binding);
+    let binding_margin = centre.get(binding);
     let sigma_b = calibrated_model_sigma(night, binding);
     // The input that moves the binding mode most, if it moves it more than the model's own error.
     let dominant = match method {
@@ -384,15 +389,41 @@ pub fn no_start_probability_in(
     })
 }
 
+/// A failure mode's no-start probability at margin `m` with the model's own error `sigma` and
+/// the total spread `spread` (inputs and model).
+///
+/// Below zero the vehicle fails at its central inputs: the inputs' spread may not pull the
+/// probability back towards 50 % (a colder night would otherwise read as less likely to fail, its
+/// larger spread outweighing its lower margin); the model's own error alone applies. Continuous at
+/// zero, monotone in the margin on both sides.
+fn mode_probability(m: f64, sigma: f64, spread: f64) -> f64 {
+    let s = if m < 0.0 { sigma } else { spread };
+    normal_cdf(-m / s)
+}
+
+/// The no-start probability of a probe `centre` estimated with given total spreads per mode
+/// (`spreads`, e.g. those of a nearby night) instead of its own sigma points: the search for a
+/// plug-in time narrows its bracket with it before it computes the real probability.
+pub(super) fn estimated_probability(
+    night: &VehicleNight,
+    centre: &Probe,
+    spreads: &[f64; 4],
+) -> f64 {
+    FailureMode::ALL
+        .iter()
+        .zip(spreads)
+        .map(|(&mode, &spread)| {
+            let sigma = calibrated_model_sigma(night, mode);
+            mode_probability(centre.modes.get(mode), sigma, spread.max(sigma))
+        })
+        .fold(0.0, f64::max)
+}
+
 /// True when the no-start probability around `centre` certainly exceeds `target`, from the
 /// central margins alone: every mode's spread is at least its (calibrated) model error, so Φ(−m/σ_model) is a
 /// lower bound of the mode's probability (equal to it below zero). Keep it a lower bound of
 /// [`no_start_probability_from`] whenever that changes (the shared-work grid test checks it).
-pub(crate) fn misses_target_for_sure(
-    night: &VehicleNight,
-    centre: &Assessment,
-    target: f64,
-) -> bool {
+pub(crate) fn misses_target_for_sure(night: &VehicleNight, centre: &Probe, target: f64) -> bool {
     FailureMode::ALL
         .iter()
         .any(|&m| normal_cdf(-centre.modes.get(m) / calibrated_model_sigma(night, m)) > target)
