@@ -166,7 +166,8 @@ impl Client {
         self.channels[(start + attempt as usize) % self.channels.len()].clone()
     }
 
-    /// One idempotent unary call with deadline and retries on `UNAVAILABLE`.
+    /// One idempotent unary call with deadline and retries while the endpoint is going away
+    /// ([`retryable`]).
     pub(crate) async fn unary<Req, Resp, F, Fut>(
         &self,
         request: Req,
@@ -194,13 +195,25 @@ impl Client {
             };
             match outcome {
                 Ok(response) => return Ok(response.into_inner()),
-                Err(s) if s.code() == Code::Unavailable && attempt < self.max_retries => {
+                Err(s) if retryable(&s) && attempt < self.max_retries => {
                     tokio::time::sleep(self.backoff.delay(attempt, self.jitter_key)).await;
                     attempt += 1;
                 }
                 Err(s) => return Err(map_status(s)),
             }
         }
+    }
+}
+
+/// Whether a unary call may be sent again, to the next endpoint: `UNAVAILABLE` (the server
+/// drains, or cannot be reached), or `CANCELLED` not from our own deadline (the connection was
+/// torn down under the call, as when a draining server exits). Every unary RPC is idempotent
+/// (assessments are pure; a resent start attempt is a duplicate), so a retry never counts twice.
+fn retryable(s: &tonic::Status) -> bool {
+    match s.code() {
+        Code::Unavailable => true,
+        Code::Cancelled => !matches!(map_status(s.clone()), Error::DeadlineExceeded(_)),
+        _ => false,
     }
 }
 
@@ -243,7 +256,8 @@ impl ClientBuilder {
         self
     }
 
-    /// Retries of an idempotent unary call after `UNAVAILABLE` (default 3; 0 disables retries).
+    /// Retries of an idempotent unary call after `UNAVAILABLE`, or `CANCELLED` by a connection torn
+    /// down under it (default 3; 0 disables retries).
     pub fn max_retries(mut self, n: u32) -> Self {
         self.max_retries = n;
         self
@@ -397,6 +411,28 @@ impl Stream for FleetStream {
                 }
                 FleetStream::Done => return Poll::Ready(None),
             }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn only_a_going_away_endpoint_is_retried_never_our_own_deadline() {
+        assert!(retryable(&tonic::Status::unavailable("server is draining")));
+        assert!(retryable(&tonic::Status::cancelled(
+            "operation was canceled"
+        )));
+        assert!(!retryable(&tonic::Status::cancelled("Timeout expired")));
+        for status in [
+            tonic::Status::invalid_argument("night.vehicle.battery.capacity_cca"),
+            tonic::Status::deadline_exceeded("late"),
+            tonic::Status::resource_exhausted("busy"),
+            tonic::Status::internal("bug"),
+        ] {
+            assert!(!retryable(&status), "{status:?}");
         }
     }
 }
