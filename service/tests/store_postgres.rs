@@ -59,6 +59,7 @@ suite_test!(version_check);
 suite_test!(tenant_isolation);
 suite_test!(limits);
 suite_test!(hostile_values);
+suite_test!(cooldown_fits);
 
 #[tokio::test]
 async fn concurrent_commits() {

@@ -37,15 +37,20 @@ pub struct States {
 }
 
 impl States {
-    /// The prior of a vehicle: its own state, else its archetype pool's prior for a vehicle with
-    /// no observations, else the archetype defaults.
+    /// The prior of a vehicle: its own state once it has start attempts, else its archetype
+    /// pool's prior (the archetype defaults without one) with its own cool-down belief, if a
+    /// key-off was fitted.
     pub fn prior_of(&self, vehicle_id: &str, archetype_id: &str) -> VehicleCalibration {
-        match self.vehicles.get(vehicle_id) {
-            Some(own) => *own,
-            None => self
-                .pools
-                .get(archetype_id)
-                .map_or_else(VehicleCalibration::uncalibrated, learning::vehicle_prior),
+        let own = self.vehicles.get(vehicle_id);
+        match own {
+            Some(own) if own.observations > 0 => *own,
+            _ => VehicleCalibration {
+                cooldown_time_constant_s: own.and_then(|o| o.cooldown_time_constant_s),
+                ..self
+                    .pools
+                    .get(archetype_id)
+                    .map_or_else(VehicleCalibration::uncalibrated, learning::vehicle_prior)
+            },
         }
     }
 }
@@ -88,4 +93,50 @@ pub fn learn(
             })
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use startmargin_model::learning::Belief;
+
+    use super::*;
+
+    #[test]
+    fn a_vehicle_known_only_by_its_cool_downs_follows_its_pool_otherwise() {
+        let mut pool = learning::uncalibrated_pool();
+        pool.thermal_offset_k.mean = -4.0;
+        pool.observations = 20;
+        let tau = Belief {
+            mean: 9_000.0,
+            sd: 900.0,
+        };
+        let mut states = States::default();
+        states.pools.insert("heavy-di-i6".into(), pool);
+        states.vehicles.insert(
+            "cooled".into(),
+            VehicleCalibration {
+                cooldown_time_constant_s: Some(tau),
+                ..VehicleCalibration::uncalibrated()
+            },
+        );
+        let prior = states.prior_of("cooled", "heavy-di-i6");
+        assert_eq!(prior.cooldown_time_constant_s, Some(tau));
+        assert_eq!(
+            prior.thermal_offset_k,
+            learning::vehicle_prior(&pool).thermal_offset_k
+        );
+        assert_eq!(prior.observations, 0);
+
+        // With attempts of its own, its own state wins, cool-down included.
+        let mut own = VehicleCalibration::uncalibrated();
+        own.thermal_offset_k.mean = 2.0;
+        own.observations = 3;
+        own.cooldown_time_constant_s = Some(tau);
+        states.vehicles.insert("seen".into(), own);
+        assert_eq!(states.prior_of("seen", "heavy-di-i6"), own);
+        // A vehicle never seen: the pool's prior, no cool-down.
+        let fresh = states.prior_of("new", "heavy-di-i6");
+        assert_eq!(fresh, learning::vehicle_prior(&pool));
+        assert_eq!(fresh.cooldown_time_constant_s, None);
+    }
 }

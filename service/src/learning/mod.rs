@@ -13,6 +13,7 @@
 //! RESOURCE_EXHAUSTED; a stream waits (it stops reading) until the bucket refills.
 
 pub mod book;
+mod cooldown;
 pub mod ingest;
 pub mod reliability;
 pub mod settings;
@@ -36,6 +37,7 @@ use self::book::{CalibrationBook, Looked};
 use self::ingest::{Learned, States};
 
 use self::storage::StoredRecord;
+pub use cooldown::{CooldownLearned, FittedCooldown};
 
 /// Most attempts in one ReportStartAttempts call.
 pub const MAX_ATTEMPTS_PER_REPORT: usize = 1000;
@@ -43,6 +45,8 @@ pub const MAX_ATTEMPTS_PER_REPORT: usize = 1000;
 pub const STREAM_BATCH: usize = 256;
 /// Refusals a StreamStartAttempts summary lists.
 pub const MAX_LISTED_REFUSALS: usize = 100;
+/// Cool-down fits a GetVehicleCalibration lists (the newest).
+pub const RECENT_COOLDOWN_FITS: usize = 10;
 /// Most attempts a fleet reliability read-out scores (the newest ones).
 pub const MAX_SCORED_ATTEMPTS: u32 = crate::store::MAX_FLEET_ATTEMPTS as u32;
 
@@ -344,22 +348,31 @@ impl Learning {
         self.ensure_loaded(tenant).await?;
         let recent = storage::recent(&self.store, tenant, &request.vehicle_id, limit).await?;
         let archetype = recent.first().map_or("", |r| r.archetype_id.as_str());
+        let fits = self
+            .store
+            .recent_cooldown_fits(tenant, &request.vehicle_id, RECENT_COOLDOWN_FITS)
+            .await?;
         let states = self.book.states(tenant);
-        let (calibration, pooled) = match states.vehicles.get(&request.vehicle_id) {
-            Some(c) => (
-                *c,
-                states.pools.get(archetype).map_or(0, |p| p.observations),
-            ),
-            None => (
-                states.prior_of(&request.vehicle_id, archetype),
-                states.pools.get(archetype).map_or(0, |p| p.observations),
-            ),
-        };
-        let updated_at = recent.first().map(|r| r.received_at_s);
+        let calibration = states.prior_of(&request.vehicle_id, archetype);
+        let pooled = states.pools.get(archetype).map_or(0, |p| p.observations);
+        let updated_at = recent
+            .first()
+            .map(|r| r.received_at_s)
+            .into_iter()
+            .chain(fits.first().map(|f| f.recorded_at_ms as f64 / 1000.0))
+            .reduce(f64::max);
         Ok(pb::GetVehicleCalibrationResponse {
             vehicle_id: request.vehicle_id.clone(),
             calibration: Some(calibration_to_pb(&calibration, pooled, updated_at)),
             attempts: recent.iter().map(StoredRecord::to_pb).collect(),
+            cooldown_fits: fits
+                .iter()
+                .map(|f| pb::CooldownFit {
+                    keyed_off_at: Some(timestamp(f.keyed_off_at_ms as f64 / 1000.0)),
+                    time_constant_h: f.time_constant_s / 3600.0,
+                    readings: f.readings,
+                })
+                .collect(),
         })
     }
 
@@ -458,6 +471,10 @@ pub fn calibration_to_pb(
         observations: c.observations,
         pooled_observations,
         updated_at: updated_at_s.map(timestamp),
+        cooldown_time_constant_h: c.cooldown_time_constant_s.map(|b| pb::FactorBelief {
+            mean: b.mean / 3600.0,
+            sd: b.sd / 3600.0,
+        }),
     }
 }
 

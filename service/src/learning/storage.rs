@@ -197,7 +197,7 @@ pub(super) fn from_stored(c: &StoredCalibration) -> VehicleCalibration {
     }
 }
 
-fn to_stored(c: &VehicleCalibration, now_ms: i64) -> StoredCalibration {
+pub(super) fn to_stored(c: &VehicleCalibration, now_ms: i64) -> StoredCalibration {
     StoredCalibration {
         thermal_offset_mean_k: c.thermal_offset_k.mean,
         thermal_offset_sd_k: c.thermal_offset_k.sd,

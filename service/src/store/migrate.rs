@@ -28,6 +28,11 @@ pub const SQLITE_MIGRATIONS: &[Migration] = &[
         name: "calibrations",
         sql: include_str!("../../migrations/sqlite/0002_calibrations.sql"),
     },
+    Migration {
+        version: 3,
+        name: "cooldown_fits",
+        sql: include_str!("../../migrations/sqlite/0003_cooldown_fits.sql"),
+    },
 ];
 
 /// The PostgreSQL migrations, oldest first (the same versions as SQLite's).
@@ -42,10 +47,15 @@ pub const POSTGRES_MIGRATIONS: &[Migration] = &[
         name: "calibrations",
         sql: include_str!("../../migrations/postgres/0002_calibrations.sql"),
     },
+    Migration {
+        version: 3,
+        name: "cooldown_fits",
+        sql: include_str!("../../migrations/postgres/0003_cooldown_fits.sql"),
+    },
 ];
 
 /// The newest schema version this build knows.
-pub const LATEST_SCHEMA_VERSION: i64 = 2;
+pub const LATEST_SCHEMA_VERSION: i64 = 3;
 
 /// The bookkeeping table (the same DDL suits both back-ends).
 pub(crate) const SCHEMA_TABLE_DDL: &str = "CREATE TABLE IF NOT EXISTS startmargin_schema (\
@@ -118,7 +128,7 @@ mod tests {
         let m = SQLITE_MIGRATIONS;
         let one = vec![(1, checksum(m[0].sql))];
         let todo = plan(m, &one, LATEST_SCHEMA_VERSION).expect("plan");
-        assert_eq!(todo.iter().map(|m| m.version).collect::<Vec<_>>(), [2]);
+        assert_eq!(todo.iter().map(|m| m.version).collect::<Vec<_>>(), [2, 3]);
         assert!(plan(m, &[(1, "0".into())], 2).is_err());
         assert!(plan(m, &[(99, "0".into())], 2).is_err());
         assert_eq!(plan(m, &[], 1).expect("plan").len(), 1);

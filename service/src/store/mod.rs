@@ -13,7 +13,8 @@
 //! content a per-item conflict — and calibrations are written only if their stored version is
 //! still the one the caller loaded, else the whole batch rolls back with
 //! [`StoreError::Concurrent`]. When it returns `Ok` the batch is durable (SQLite WAL with
-//! `synchronous = FULL`; a PostgreSQL commit).
+//! `synchronous = FULL`; a PostgreSQL commit). [`Store::record_cooldown`] keeps cool-down fits
+//! the same way, one per vehicle and key-off.
 
 mod config;
 mod error;
@@ -204,6 +205,35 @@ impl Store {
         validate::tenant(tenant)?;
         validate::batch(batch)?;
         dispatch!(self, commit(tenant, batch))
+    }
+
+    /// Records a cool-down fit and the vehicle calibration it leaves, in one transaction: a
+    /// key-off recorded before is a [`CooldownRecorded::Duplicate`] and writes nothing; a
+    /// vehicle calibration changed since the caller loaded it aborts with
+    /// [`StoreError::Concurrent`].
+    pub async fn record_cooldown(
+        &self,
+        tenant: &str,
+        fit: &StoredCooldownFit,
+        vehicle: &CalibrationWrite,
+    ) -> Result<CooldownRecorded, StoreError> {
+        validate::tenant(tenant)?;
+        validate::cooldown(fit, vehicle)?;
+        dispatch!(self, record_cooldown(tenant, fit, vehicle))
+    }
+
+    /// A vehicle's cool-down fits, newest key-off first, at most `limit` (1 to
+    /// [`MAX_RECENT_COOLDOWN_FITS`]).
+    pub async fn recent_cooldown_fits(
+        &self,
+        tenant: &str,
+        vehicle_id: &str,
+        limit: usize,
+    ) -> Result<Vec<StoredCooldownFit>, StoreError> {
+        validate::tenant(tenant)?;
+        validate::id("vehicle_id", vehicle_id, false)?;
+        validate::limit(limit, MAX_RECENT_COOLDOWN_FITS)?;
+        dispatch!(self, recent_cooldown_fits(tenant, vehicle_id, limit))
     }
 
     /// A vehicle's attempts, newest first, at most `limit` (1 to [`MAX_RECENT_ATTEMPTS`]).

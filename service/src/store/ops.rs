@@ -349,6 +349,67 @@ macro_rules! store_ops {
             Ok(outcome)
         }
 
+        pub(super) async fn record_cooldown(
+            pool: &Pool,
+            tenant: &str,
+            fit: &StoredCooldownFit,
+            vehicle: &CalibrationWrite,
+        ) -> Result<CooldownRecorded, StoreError> {
+            let mut tx = begin(pool).await?;
+            let inserted = sqlx::query(
+                "INSERT INTO cooldown_fits (tenant_id, vehicle_id, keyed_off_at_ms, \
+                 time_constant_s, readings, recorded_at_ms) VALUES ($1, $2, $3, $4, $5, $6) \
+                 ON CONFLICT (tenant_id, vehicle_id, keyed_off_at_ms) DO NOTHING",
+            )
+            .bind(tenant)
+            .bind(&fit.vehicle_id)
+            .bind(fit.keyed_off_at_ms)
+            .bind(fit.time_constant_s)
+            .bind(i64::from(fit.readings))
+            .bind(fit.recorded_at_ms)
+            .execute(&mut *tx)
+            .await?
+            .rows_affected();
+            if inserted != 1 {
+                // Rolled back on drop: a replayed cool-down changes nothing.
+                return Ok(CooldownRecorded::Duplicate);
+            }
+            let vehicle_version =
+                write_calibration(&mut tx, tenant, CalibrationKind::Vehicle, vehicle).await?;
+            tx.commit().await?;
+            Ok(CooldownRecorded::Inserted { vehicle_version })
+        }
+
+        pub(super) async fn recent_cooldown_fits(
+            pool: &Pool,
+            tenant: &str,
+            vehicle_id: &str,
+            limit: usize,
+        ) -> Result<Vec<StoredCooldownFit>, StoreError> {
+            let rows = sqlx::query(
+                "SELECT vehicle_id, keyed_off_at_ms, time_constant_s, readings, recorded_at_ms \
+                 FROM cooldown_fits WHERE tenant_id = $1 AND vehicle_id = $2 \
+                 ORDER BY keyed_off_at_ms DESC LIMIT $3",
+            )
+            .bind(tenant)
+            .bind(vehicle_id)
+            .bind(limit as i64)
+            .fetch_all(pool)
+            .await?;
+            let mut fits = Vec::with_capacity(rows.len());
+            for row in &rows {
+                let readings: i64 = row.try_get("readings")?;
+                fits.push(StoredCooldownFit {
+                    vehicle_id: row.try_get("vehicle_id")?,
+                    keyed_off_at_ms: row.try_get("keyed_off_at_ms")?,
+                    time_constant_s: row.try_get("time_constant_s")?,
+                    readings: u32::try_from(readings).map_err(|_| internal("reading count"))?,
+                    recorded_at_ms: row.try_get("recorded_at_ms")?,
+                });
+            }
+            Ok(fits)
+        }
+
         pub(super) async fn recent_attempts(
             pool: &Pool,
             tenant: &str,

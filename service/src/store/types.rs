@@ -213,3 +213,34 @@ impl CommitOutcome {
         self.attempts.iter().filter(|r| **r == result).count()
     }
 }
+
+/// Most cool-down fits a vehicle read-out returns.
+pub const MAX_RECENT_COOLDOWN_FITS: usize = 100;
+
+/// A cool-down time constant fitted from one key-off's coolant readings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StoredCooldownFit {
+    /// The vehicle (1 to 128 bytes).
+    pub vehicle_id: String,
+    /// When its cool-down began (the first reading after key-off), UTC epoch milliseconds:
+    /// with the vehicle, the fit's idempotency key.
+    pub keyed_off_at_ms: i64,
+    /// The fitted time constant, seconds (positive).
+    pub time_constant_s: f64,
+    /// Coolant readings behind the fit.
+    pub readings: u32,
+    /// When it was recorded, UTC epoch milliseconds.
+    pub recorded_at_ms: i64,
+}
+
+/// What recording a cool-down fit did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CooldownRecorded {
+    /// Stored, with the vehicle calibration at this new version.
+    Inserted {
+        /// The vehicle calibration's new version.
+        vehicle_version: i64,
+    },
+    /// This key-off was recorded already; nothing changed.
+    Duplicate,
+}

@@ -8,6 +8,7 @@ use super::error::StoreError;
 use super::types::{
     AttemptKey, CalibrationWrite, CommitBatch, MAX_BATCH_ATTEMPTS, MAX_BATCH_CALIBRATIONS,
     MAX_ID_BYTES, MAX_LOOKUP_KEYS, MAX_TENANT_BYTES, StoredAttempt, StoredCalibration,
+    StoredCooldownFit,
 };
 
 /// A tenant id: 1 to 128 bytes, no control characters.
@@ -159,22 +160,57 @@ fn writes(path: &str, writes: &[CalibrationWrite]) -> Result<(), StoreError> {
     let mut seen = HashSet::with_capacity(writes.len());
     for (i, w) in writes.iter().enumerate() {
         let item = format!("{path}[{i}]");
-        id(&format!("{item}.id"), &w.id, false)?;
         if !seen.insert(w.id.as_str()) {
             return Err(StoreError::invalid(
                 format!("{item}.id"),
                 "appears twice in the batch",
             ));
         }
-        if let Some(v) = w.expected_version
-            && (v < 1 || v == i64::MAX)
-        {
-            return Err(StoreError::invalid(
-                format!("{item}.expected_version"),
-                "must be a stored version (1 or more) or absent",
-            ));
-        }
-        calibration(&format!("{item}.calibration"), &w.calibration)?;
+        write(&item, w)?;
+    }
+    Ok(())
+}
+
+/// One calibration write at `path`.
+pub(crate) fn write(path: &str, w: &CalibrationWrite) -> Result<(), StoreError> {
+    id(&format!("{path}.id"), &w.id, false)?;
+    if let Some(v) = w.expected_version
+        && (v < 1 || v == i64::MAX)
+    {
+        return Err(StoreError::invalid(
+            format!("{path}.expected_version"),
+            "must be a stored version (1 or more) or absent",
+        ));
+    }
+    calibration(&format!("{path}.calibration"), &w.calibration)
+}
+
+/// A cool-down fit and the vehicle calibration it leaves: the same vehicle, a positive time
+/// constant and at least one reading.
+pub(crate) fn cooldown(fit: &StoredCooldownFit, w: &CalibrationWrite) -> Result<(), StoreError> {
+    id("fit.vehicle_id", &fit.vehicle_id, false)?;
+    finite("fit.time_constant_s", fit.time_constant_s)?;
+    if fit.time_constant_s <= 0.0 {
+        return Err(StoreError::invalid(
+            "fit.time_constant_s",
+            "must be positive",
+        ));
+    }
+    if fit.readings == 0 {
+        return Err(StoreError::invalid("fit.readings", "must be at least 1"));
+    }
+    write("vehicle", w)?;
+    if w.id != fit.vehicle_id {
+        return Err(StoreError::invalid(
+            "vehicle.id",
+            "must be the fit's vehicle",
+        ));
+    }
+    if w.calibration.cooldown_tau_mean_s.is_none() {
+        return Err(StoreError::invalid(
+            "vehicle.calibration.cooldown_tau_mean_s",
+            "must be set by a cool-down fit",
+        ));
     }
     Ok(())
 }

@@ -11,6 +11,10 @@
 //! vehicle keeps its own clock, its latest telemetry time: an older report is refused, and a
 //! report moves the act-by alerts of its own vehicle only.
 //!
+//! A cool-down that ends (the next key-off, or heat going in) with a fit from at least an hour
+//! of coolant readings is stored and learned into the vehicle's calibration
+//! ([`crate::learning::Learning::record_cooldown`]), so that later nights start from it.
+//!
 //! Bounds: at most `watch_max_vehicles_per_stream` vehicles, `watch_max_updates_per_s` updates
 //! per second (faster input is read more slowly); the input is not read, and a re-score submits
 //! no more work, while [`MAX_QUEUED_ALERTS`] alerts or [`MAX_QUEUED_REFUSALS`] refusals wait
@@ -37,17 +41,18 @@ use tokio::time::Instant;
 use tokio_stream::Stream;
 use tokio_util::sync::CancellationToken;
 use tonic::{Request, Status};
-use tracing::{Instrument, debug, info, info_span};
+use tracing::{Instrument, debug, info, info_span, warn};
 
 use crate::api::pool::{Budget, ComputePool, Job, Lane, QuotaGuard};
 use crate::codec::Inbound;
 use crate::convert::{self, MAX_ID_LEN, ZoneForecasts};
 use crate::error::{ApiError, FieldViolation, to_rpc_status};
+use crate::learning::{CooldownLearned, FittedCooldown};
 use crate::metrics;
 use crate::tenant::{Tenant, tenant_of};
 
 use self::outbox::{Outbox, Reader};
-use self::vehicle::{Score, Vehicle, apply_score, clear_all};
+use self::vehicle::{EndedCooldown, Score, Vehicle, apply_score, clear_all};
 
 pub use self::settings::WatchSettings;
 pub use self::vehicle::{FIT_FROM_READINGS, HEATER_RISE_K, RING_LEN, alert_id, alert_id_hex};
@@ -510,8 +515,45 @@ impl WatchStream {
         }
         let key: Box<str> = id.as_str().into();
         let before = v.clone();
-        v.observe(&t, observed.seconds);
+        if let Some(ended) = v.observe(&t, observed.seconds) {
+            self.learn_cooldown(&id, ended);
+        }
         Ok((vec![key.clone()], Some((key, Some(before)))))
+    }
+
+    /// Stores a cool-down that ended and updates the vehicle's calibration with it, off the
+    /// stream's path (a slow store never holds up alerts). Idempotent per vehicle and key-off,
+    /// so a replayed or undone-and-resent update is not learned from twice.
+    fn learn_cooldown(&self, vehicle_id: &str, ended: EndedCooldown) {
+        let learning = Arc::clone(&self.compute.learning);
+        let tenant = self.tenant.as_str().to_string();
+        let fit = FittedCooldown {
+            vehicle_id: vehicle_id.to_string(),
+            keyed_off_at_s: ended.keyed_off_at_s,
+            time_constant_s: ended.time_constant_s,
+            readings: ended.readings,
+        };
+        tokio::spawn(
+            async move {
+                match learning.record_cooldown(&tenant, &fit).await {
+                    Ok(CooldownLearned::Updated(belief)) => debug!(
+                        vehicle_id = fit.vehicle_id,
+                        tau_h = belief.mean / 3600.0,
+                        sd_h = belief.sd / 3600.0,
+                        "cool-down learned"
+                    ),
+                    Ok(CooldownLearned::Duplicate) => {
+                        debug!(vehicle_id = fit.vehicle_id, "cool-down known already");
+                    }
+                    Err(e) => warn!(
+                        vehicle_id = fit.vehicle_id,
+                        error = %e,
+                        "cool-down not learned"
+                    ),
+                }
+            }
+            .in_current_span(),
+        );
     }
 
     fn zone(&mut self, z: pb::WatchZoneForecast) -> Result<Vec<Box<str>>, ApiError> {

@@ -18,6 +18,22 @@ pub const RING_LEN: usize = 12;
 pub const FIT_FROM_READINGS: usize = 4;
 /// A coolant rise above the previous reading that means heat is going in (heater on), kelvin.
 pub const HEATER_RISE_K: f64 = 2.0;
+/// Shortest span of readings whose fit is learned from when its cool-down ends: a shorter one
+/// sees too little of the decay to say much beyond tonight (our choice).
+pub(crate) const LEARN_FROM_SPAN_S: f32 = 3_600.0;
+/// Fitted time constants the model accepts, hours.
+const TAU_RANGE_H: std::ops::RangeInclusive<f64> = 0.25..=24.0;
+
+/// A cool-down that ended (the next key-off, or heat going in) with a fit worth learning from.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct EndedCooldown {
+    /// The first reading after key-off, UTC seconds: with the vehicle, the fit's key.
+    pub(crate) keyed_off_at_s: i64,
+    /// The fitted time constant, seconds.
+    pub(crate) time_constant_s: f64,
+    /// Readings behind the fit.
+    pub(crate) readings: u32,
+}
 
 /// Coolant readings after key-off: (seconds since the first reading, coolant °C, ambient °C).
 #[derive(Debug, Clone, Default)]
@@ -53,6 +69,23 @@ impl Ring {
             self.readings[usize::from(self.len)] = entry;
             self.len += 1;
         }
+    }
+
+    /// The fit to learn from when this cool-down ends: from readings spanning at least
+    /// [`LEARN_FROM_SPAN_S`], with a time constant the model accepts.
+    fn ended(&self) -> Option<EndedCooldown> {
+        let n = usize::from(self.len);
+        if n < FIT_FROM_READINGS || self.readings[n - 1].0 < LEARN_FROM_SPAN_S {
+            return None;
+        }
+        let tau_s = self.fit_s()?;
+        TAU_RANGE_H
+            .contains(&(tau_s / 3600.0))
+            .then_some(EndedCooldown {
+                keyed_off_at_s: self.start_s,
+                time_constant_s: tau_s,
+                readings: u32::from(self.len),
+            })
     }
 
     /// Fits the cool-down time constant, seconds, from 4 readings on.
@@ -152,12 +185,14 @@ impl Vehicle {
     }
 
     /// Takes a telemetry report: buffers coolant readings since key-off, refits the cool-down
-    /// time constant, and infers the heater from the report or a coolant rise.
-    pub(crate) fn observe(&mut self, t: &pb::TelemetryUpdate, at_s: i64) {
-        let Some(telemetry) = t.telemetry.as_ref() else {
-            return;
-        };
+    /// time constant, and infers the heater from the report or a coolant rise. Returns the
+    /// cool-down this report ended (a new key-off, or heat going in), when it is worth learning
+    /// from.
+    pub(crate) fn observe(&mut self, t: &pb::TelemetryUpdate, at_s: i64) -> Option<EndedCooldown> {
+        let telemetry = t.telemetry.as_ref()?;
+        let mut ended = None;
         if t.key_off {
+            ended = self.ring.ended();
             self.ring.clear();
             self.tau_h = None;
             self.heater_from_s = None;
@@ -176,6 +211,7 @@ impl Vehicle {
                 .is_some_and(|last| coolant_c > f64::from(last) + HEATER_RISE_K);
             if rising {
                 // Heat is going in: the cool-down has ended; with a block heater, take it as on.
+                ended = ended.or(self.ring.ended());
                 self.ring.clear();
                 if self.has_heater && t.block_heater_on != Some(false) {
                     self.heater_from_s.get_or_insert(at_s);
@@ -187,11 +223,12 @@ impl Vehicle {
                 if let Some(tau_s) = self.ring.fit_s() {
                     let h = tau_s / 3600.0;
                     // Only values the model accepts; otherwise the profile's stays in use.
-                    self.tau_h = (0.25..=24.0).contains(&h).then_some(h as f32);
+                    self.tau_h = TAU_RANGE_H.contains(&h).then_some(h as f32);
                 }
             }
         }
         self.telemetry = Some(*telemetry);
+        ended
     }
 
     /// The night to score: the profile with the fitted time constant, the last telemetry, the
@@ -444,6 +481,96 @@ fn outlook_name(o: i32) -> &'static str {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn reading(at_s: i64, coolant_c: f64, key_off: bool) -> pb::TelemetryUpdate {
+        pb::TelemetryUpdate {
+            vehicle_id: "v1".into(),
+            telemetry: Some(pb::VehicleTelemetry {
+                observed_at: Some(Timestamp {
+                    seconds: at_s,
+                    nanos: 0,
+                }),
+                coolant_c: Some(coolant_c),
+                ambient_c: Some(-10.0),
+                ..Default::default()
+            }),
+            block_heater_on: None,
+            key_off,
+        }
+    }
+
+    /// Newton cooling towards −10 °C from 85 °C with τ = 2 h, readings every 15 min.
+    fn cooling_c(t_s: i64) -> f64 {
+        -10.0 + 95.0 * (-(t_s as f64) / 7_200.0).exp()
+    }
+
+    fn vehicle() -> Vehicle {
+        let profile = pb::VehicleProfile {
+            vehicle_id: "v1".into(),
+            ..Default::default()
+        };
+        let w = pb::WatchedVehicle {
+            vehicle: Some(profile.clone()),
+            ..Default::default()
+        };
+        Vehicle::new(&w, &profile)
+    }
+
+    #[test]
+    fn a_cool_down_is_learned_from_when_it_ends_and_only_from_an_hour_of_readings() {
+        let start_s = 1_800_000_000;
+        // 45 min of readings (4 of them), then the next key-off: too short to learn from.
+        let mut v = vehicle();
+        for k in 0..4 {
+            assert_eq!(
+                v.observe(
+                    &reading(start_s + k * 900, cooling_c(k * 900), k == 0),
+                    start_s + k * 900
+                ),
+                None
+            );
+        }
+        assert!(
+            v.tau_h.is_some(),
+            "tonight's fit is used from the 4th reading"
+        );
+        assert_eq!(
+            v.observe(&reading(start_s + 3_700, 80.0, true), start_s + 3_700),
+            None
+        );
+
+        // 2 h of readings: the next key-off ends it with its fit, keyed by the first reading.
+        let mut v = vehicle();
+        for k in 0..9 {
+            let at_s = start_s + k * 900;
+            assert_eq!(
+                v.observe(&reading(at_s, cooling_c(k * 900), k == 0), at_s),
+                None
+            );
+        }
+        let ended = v
+            .observe(&reading(start_s + 9_000, 85.0, true), start_s + 9_000)
+            .expect("ended by the key-off");
+        assert_eq!((ended.keyed_off_at_s, ended.readings), (start_s, 9));
+        assert!((ended.time_constant_s - 7_200.0).abs() < 1.0, "{ended:?}");
+
+        // The same readings ended by heat going in (a coolant rise) instead.
+        let mut v = vehicle();
+        for k in 0..9 {
+            let at_s = start_s + k * 900;
+            v.observe(&reading(at_s, cooling_c(k * 900), k == 0), at_s);
+        }
+        let rise_c = cooling_c(8 * 900) + HEATER_RISE_K + 1.0;
+        let by_rise = v
+            .observe(&reading(start_s + 8_500, rise_c, false), start_s + 8_500)
+            .expect("ended by the rise");
+        assert_eq!(by_rise, ended);
+        // Nothing more until the next cool-down has an hour of its own.
+        assert_eq!(
+            v.observe(&reading(start_s + 9_400, 30.0, false), start_s + 9_400),
+            None
+        );
+    }
 
     #[test]
     fn alert_ids_are_deterministic_and_distinct() {

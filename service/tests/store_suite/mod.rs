@@ -9,9 +9,10 @@ pub mod fixtures;
 use std::collections::HashSet;
 
 use startmargin_service::store::{
-    AttemptKey, AttemptResult, CalibrationWrite, CommitBatch, MAX_BATCH_ATTEMPTS,
+    AttemptKey, AttemptResult, CalibrationWrite, CommitBatch, CooldownRecorded, MAX_BATCH_ATTEMPTS,
     MAX_BATCH_CALIBRATIONS, MAX_FLEET_ATTEMPTS, MAX_ID_BYTES, MAX_LOOKUP_KEYS, MAX_RECENT_ATTEMPTS,
-    MAX_TENANT_BYTES, Store, StoreConfig, StoreError, StoredAttempt, StoredOutcome,
+    MAX_RECENT_COOLDOWN_FITS, MAX_TENANT_BYTES, Store, StoreConfig, StoreError, StoredAttempt,
+    StoredCooldownFit, StoredOutcome,
 };
 
 use fixtures::{attempt, calibration, tenant_ids};
@@ -634,4 +635,172 @@ pub async fn migrations(config: StoreConfig, older: StoreConfig) {
         .await
         .expect("calibrations after upgrade");
     upgraded.close().await;
+}
+
+fn cooldown_fit(vehicle_id: &str, keyed_off_at_ms: i64, tau_s: f64) -> StoredCooldownFit {
+    StoredCooldownFit {
+        vehicle_id: vehicle_id.to_string(),
+        keyed_off_at_ms,
+        time_constant_s: tau_s,
+        readings: 12,
+        recorded_at_ms: 1_700_000_100_000,
+    }
+}
+
+/// A cool-down fit is stored with its vehicle calibration in one transaction, once per vehicle
+/// and key-off: a replay writes nothing, a stale version writes neither, another tenant sees
+/// none of it, and hostile values are refused before the database.
+pub async fn cooldown_fits(store: Store) {
+    let (a, b) = tenant_ids();
+    let first = store
+        .record_cooldown(
+            &a,
+            &cooldown_fit("van-2", 1_000, 9_000.0),
+            &vehicle_write("van-2", None, 0.0),
+        )
+        .await
+        .expect("first fit");
+    assert_eq!(first, CooldownRecorded::Inserted { vehicle_version: 1 });
+    // The same key-off again, even with another value: nothing changes.
+    let replay = store
+        .record_cooldown(
+            &a,
+            &cooldown_fit("van-2", 1_000, 5_000.0),
+            &vehicle_write("van-2", Some(1), 9.0),
+        )
+        .await
+        .expect("replay");
+    assert_eq!(replay, CooldownRecorded::Duplicate);
+    let stored = store
+        .vehicle_calibration(&a, "van-2")
+        .await
+        .expect("read")
+        .expect("present");
+    assert_eq!((stored.version, stored.thermal_offset_mean_k), (1, 0.0));
+    // A stale version writes neither the fit nor the calibration.
+    let stale = store
+        .record_cooldown(
+            &a,
+            &cooldown_fit("van-2", 2_000, 9_500.0),
+            &vehicle_write("van-2", None, 1.0),
+        )
+        .await;
+    assert!(matches!(stale, Err(StoreError::Concurrent(_))), "{stale:?}");
+    let next = store
+        .record_cooldown(
+            &a,
+            &cooldown_fit("van-2", 3_000, 9_200.0),
+            &vehicle_write("van-2", Some(1), 2.0),
+        )
+        .await
+        .expect("next key-off");
+    assert_eq!(next, CooldownRecorded::Inserted { vehicle_version: 2 });
+    let fits = store
+        .recent_cooldown_fits(&a, "van-2", 10)
+        .await
+        .expect("fits");
+    assert_eq!(
+        fits.iter()
+            .map(|f| (f.keyed_off_at_ms, f.time_constant_s, f.readings))
+            .collect::<Vec<_>>(),
+        [(3_000, 9_200.0, 12), (1_000, 9_000.0, 12)],
+        "newest first; the replay and the stale write left no row"
+    );
+    assert_eq!(fits[0], cooldown_fit("van-2", 3_000, 9_200.0));
+
+    // Another tenant: none of it, and its own key-off of the same id is its own.
+    assert!(
+        store
+            .recent_cooldown_fits(&b, "van-2", 10)
+            .await
+            .expect("fits")
+            .is_empty()
+    );
+    assert!(
+        store
+            .vehicle_calibration(&b, "van-2")
+            .await
+            .expect("read")
+            .is_none()
+    );
+    assert_eq!(
+        store
+            .record_cooldown(
+                &b,
+                &cooldown_fit("van-2", 1_000, 7_000.0),
+                &vehicle_write("van-2", None, 0.0),
+            )
+            .await
+            .expect("tenant b"),
+        CooldownRecorded::Inserted { vehicle_version: 1 }
+    );
+
+    // Hostile values: refused with the field, nothing written.
+    let mut no_tau = vehicle_write("van-3", None, 0.0);
+    no_tau.calibration.cooldown_tau_mean_s = None;
+    no_tau.calibration.cooldown_tau_sd_s = None;
+    let cases = [
+        (
+            cooldown_fit("van-3", 1, f64::NAN),
+            vehicle_write("van-3", None, 0.0),
+            "fit.time_constant_s",
+        ),
+        (
+            cooldown_fit("van-3", 1, f64::INFINITY),
+            vehicle_write("van-3", None, 0.0),
+            "fit.time_constant_s",
+        ),
+        (
+            cooldown_fit("van-3", 1, -5.0),
+            vehicle_write("van-3", None, 0.0),
+            "fit.time_constant_s",
+        ),
+        (
+            StoredCooldownFit {
+                readings: 0,
+                ..cooldown_fit("van-3", 1, 9_000.0)
+            },
+            vehicle_write("van-3", None, 0.0),
+            "fit.readings",
+        ),
+        (
+            cooldown_fit("", 1, 9_000.0),
+            vehicle_write("", None, 0.0),
+            "fit.vehicle_id",
+        ),
+        (
+            cooldown_fit("van-3", 1, 9_000.0),
+            vehicle_write("van-4", None, 0.0),
+            "vehicle.id",
+        ),
+        (
+            cooldown_fit("van-3", 1, 9_000.0),
+            no_tau,
+            "vehicle.calibration.cooldown_tau_mean_s",
+        ),
+        (
+            cooldown_fit(&"x".repeat(MAX_ID_BYTES + 1), 1, 9_000.0),
+            vehicle_write("van-3", None, 0.0),
+            "fit.vehicle_id",
+        ),
+    ];
+    for (fit, write, field) in cases {
+        match store.record_cooldown(&a, &fit, &write).await {
+            Err(StoreError::InvalidArgument { field: f, .. }) => assert_eq!(f, field),
+            other => panic!("{field}: {other:?}"),
+        }
+    }
+    assert!(
+        store
+            .recent_cooldown_fits(&a, "van-3", 10)
+            .await
+            .expect("fits")
+            .is_empty()
+    );
+    for limit in [0, MAX_RECENT_COOLDOWN_FITS + 1] {
+        assert!(matches!(
+            store.recent_cooldown_fits(&a, "van-2", limit).await,
+            Err(StoreError::InvalidArgument { .. })
+        ));
+    }
 }
