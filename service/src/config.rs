@@ -37,6 +37,12 @@ pub const HTTP2_MAX_WINDOW_BYTES: u32 = (1 << 31) - 1;
 /// times the bytes buffered (rounded up).
 pub const H2_WORST_FRAME_CHARGE_PER_BYTE: u64 = 51;
 
+/// Vehicles a fleet or watch stream keeps in flight per compute thread. A result holds its place
+/// until the reader takes it, so with 2 per thread the compute threads waited for the transport
+/// between vehicles; 8 kept them busier (a 30,000-vehicle fleet stream on 2 cores: 6,280 against
+/// 5,490 vehicles/s, means of 7 alternating runs), and the tenant's in-flight cap still bounds it.
+pub const FLEET_IN_FLIGHT_PER_THREAD: usize = 8;
+
 /// How log lines are written.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -451,10 +457,11 @@ impl Config {
         }
     }
 
-    /// Vehicles of one fleet stream in flight at once: twice the compute threads, within the
-    /// global concurrency limit.
+    /// Vehicles of one fleet (or watch) stream in flight at once: [`FLEET_IN_FLIGHT_PER_THREAD`]
+    /// per compute thread, within the global concurrency limit.
     pub fn fleet_in_flight_per_stream(&self) -> usize {
-        (self.effective_compute_threads() * 2).clamp(1, self.concurrency_limit)
+        (self.effective_compute_threads() * FLEET_IN_FLIGHT_PER_THREAD)
+            .clamp(1, self.concurrency_limit)
     }
 
     /// Problems of the flow-control window: it must let a normal call flow (at least one
@@ -591,7 +598,7 @@ mod tests {
         assert_eq!(c.listen.port(), 6000);
         assert_eq!(c.log_format, LogFormat::Json);
         assert_eq!(c.effective_compute_threads(), 3);
-        assert_eq!(c.fleet_in_flight_per_stream(), 6);
+        assert_eq!(c.fleet_in_flight_per_stream(), 24);
 
         let bad = Figment::from(Serialized::defaults(Config::default()))
             .merge(Toml::string("listne = \"0.0.0.0:6000\""))
