@@ -4,8 +4,9 @@
 //!
 //! Graceful drain, bounded in time (tonic's `serve_with_shutdown` alone waits for every
 //! connection forever): health turns NOT_SERVING first, a cancellation token then ends every open
-//! stream (fleet streams and health watches) with UNAVAILABLE "server is draining", the listener
-//! closes, unary calls in flight finish, and after `drain_timeout_s` the server stops regardless.
+//! stream (fleet streams and health watches) with UNAVAILABLE "server is draining", half a
+//! second later (so that peers read those statuses) the listener closes, unary calls in flight
+//! finish, and after `drain_timeout_s` the server stops regardless.
 //!
 //! Production layers: TLS (optionally mutual) from [`crate::tls`]; bearer-token authentication
 //! from [`crate::auth`] (health and reflection stay open); a [`CallLayer`] that records every API
@@ -242,6 +243,9 @@ pub fn loopback_config() -> Config {
     config
 }
 
+/// How long a drain lets ended streams deliver their final status before connections close.
+const STREAM_END_GRACE: Duration = Duration::from_millis(500);
+
 /// Health → NOT_SERVING, streams end, listener closes, unary calls finish, all within `timeout`.
 async fn drain(
     reporter: &HealthReporter,
@@ -258,8 +262,13 @@ async fn drain(
         .set_service_status(SERVICE_NAME, ServingStatus::NotServing)
         .await;
     draining.cancel();
+    // Streams have just been told to end with "server is draining": let their last results and
+    // that status reach the peers before connections start closing. Closed at once, a peer still
+    // sending on its stream could see its connection fail before it read them.
+    let grace = STREAM_END_GRACE.min(timeout / 2);
+    tokio::time::sleep(grace).await;
     let _ = stop.send(());
-    match tokio::time::timeout(timeout, &mut serve).await {
+    match tokio::time::timeout(timeout.saturating_sub(grace), &mut serve).await {
         Ok(ended) => {
             ended
                 .context("the server task failed")?
