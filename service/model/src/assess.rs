@@ -35,7 +35,7 @@ use crate::gel_risk::{FuelTemperatureSample, GelOutlook};
 use crate::ignition::{self, DelayCorrelation};
 use crate::induction;
 use crate::learning::VehicleCalibration;
-use crate::oil::{self, SaeGrade};
+use crate::oil::SaeGrade;
 use crate::soak::{self, FilterMount, Forecast, ForecastHour, HeaterSchedule, ThermalNode};
 use shared::{Chain, Detail, NightContext, Soak, Stages};
 
@@ -919,7 +919,7 @@ fn start_point(
     let cranking = CrankingSummary {
         result,
         min_start_speed_rpm: engine.min_start_speed_rpm,
-        oil_viscosity_pa_s: oil::dynamic_viscosity_pa_s(night.oil, engine_t_k)?,
+        oil_viscosity_pa_s: result.oil_viscosity_pa_s,
     };
     // Below the minimum starting speed the engine does not start whatever the charge does; the
     // budget is then shown at the minimum starting speed (the best the starter would need to do).

@@ -165,6 +165,8 @@ pub struct CrankingResult {
     pub drag_torque_nm: f64,
     /// The battery electrolyte is frozen: no cranking, and do not charge or jump-start it.
     pub battery_frozen: bool,
+    /// Dynamic viscosity of the oil at its temperature, Pa·s (what set the drag).
+    pub oil_viscosity_pa_s: f64,
 }
 
 /// Engine geometry and oil state that set the drag.
@@ -264,6 +266,7 @@ pub fn cranking_speed(input: &CrankingInput) -> Result<CrankingResult, ModelErro
             terminal_v: ocv_v,
             drag_torque_nm: drag.static_nm,
             battery_frozen: true,
+            oil_viscosity_pa_s: mu_pa_s,
         });
     }
 
@@ -285,6 +288,7 @@ pub fn cranking_speed(input: &CrankingInput) -> Result<CrankingResult, ModelErro
             terminal_v: ocv_v - i_a * battery_ohm,
             drag_torque_nm: drag.static_nm,
             battery_frozen: false,
+            oil_viscosity_pa_s: mu_pa_s,
         })
     };
     let (mut lo, mut f_lo) = (0.0, net_nm(0.0));
@@ -333,6 +337,7 @@ pub fn cranking_speed(input: &CrankingInput) -> Result<CrankingResult, ModelErro
         terminal_v: ocv_v - i_a * battery_ohm,
         drag_torque_nm: drag.torque_nm(engine_rad_s),
         battery_frozen: false,
+        oil_viscosity_pa_s: mu_pa_s,
     })
 }
 
