@@ -126,18 +126,21 @@ fn fleet_requests() -> Vec<pb::AssessFleetRequest> {
 }
 
 /// One fleet stream of every request; checks that every vehicle got an assessment.
+/// One fleet run; returns the encoded bytes of its answers.
 async fn fleet_once(
     client: &mut StartMarginServiceClient<Channel>,
     requests: &[pb::AssessFleetRequest],
-) {
+) -> usize {
     let mut results = client
         .assess_fleet(tokio_stream::iter(requests.to_vec()))
         .await
         .expect("the fleet stream opens")
         .into_inner();
     let mut assessed = 0;
+    let mut bytes = 0;
     while let Some(r) = results.next().await {
         let r = r.expect("the stream does not fail");
+        bytes += prost::Message::encoded_len(&r);
         assert!(
             matches!(r.outcome, Some(Outcome::Assessment(_))),
             "item {} failed: {:?}",
@@ -147,23 +150,34 @@ async fn fleet_once(
         assessed += 1;
     }
     assert_eq!(assessed, FLEET_VEHICLES);
+    bytes
 }
 
-/// The same vehicles in-process, split over `threads` threads (the server's compute threads).
-fn in_process_once(nights: &[pb::VehicleNight], zones: &ZoneForecasts, threads: usize) {
+/// The same vehicles in-process, split over `threads` threads (the server's compute threads);
+/// returns the CPU those threads used, s.
+fn in_process_once(nights: &[pb::VehicleNight], zones: &ZoneForecasts, threads: usize) -> f64 {
     let chunk = nights.len().div_ceil(threads.max(1));
     std::thread::scope(|s| {
-        for part in nights.chunks(chunk) {
-            s.spawn(move || {
-                for n in part {
-                    black_box(
-                        convert::assess_pb(black_box(n), "vehicle", zones)
-                            .expect("the bench night is valid"),
-                    );
-                }
-            });
-        }
-    });
+        let workers: Vec<_> = nights
+            .chunks(chunk)
+            .map(|part| {
+                s.spawn(move || {
+                    let before_s = this_thread_cpu_s();
+                    for n in part {
+                        black_box(
+                            convert::assess_pb(black_box(n), "vehicle", zones)
+                                .expect("the bench night is valid"),
+                        );
+                    }
+                    this_thread_cpu_s() - before_s
+                })
+            })
+            .collect();
+        workers
+            .into_iter()
+            .map(|w| w.join().expect("an in-process thread"))
+            .sum()
+    })
 }
 
 /// Name of the server runtime's threads.
@@ -309,10 +323,12 @@ fn mean_s(n: u32, mut f: impl FnMut()) -> f64 {
 
 fn ratios(s: &mut Setup) {
     let fleet_s = mean_s(5, || {
-        s.runtime.block_on(fleet_once(&mut s.client, &s.requests))
+        s.runtime.block_on(fleet_once(&mut s.client, &s.requests));
     });
     let threads = s.threads;
-    let local_s = mean_s(5, || in_process_once(&s.nights, &s.zones, threads));
+    let local_s = mean_s(5, || {
+        in_process_once(&s.nights, &s.zones, threads);
+    });
     let unary_s = mean_s(1_000, || {
         s.runtime
             .block_on(s.client.assess_vehicle(s.unary.clone()))
@@ -328,9 +344,23 @@ fn ratios(s: &mut Setup) {
     let unary_local_s = mean_s(1_000, || {
         black_box(convert::assess_pb(black_box(&night), "night", &empty).expect("valid"));
     });
+    // Where a fleet run's CPU goes, per vehicle: compute threads, the server's runtime, and
+    // everything else in the process (the client and its runtime), against the model's thread
+    // CPU in-process.
+    let server_threads = [SERVER_THREAD, COMPUTE_THREAD];
+    let (compute0, runtime0, all0) = (
+        threads_cpu_s(&[COMPUTE_THREAD]),
+        threads_cpu_s(&[SERVER_THREAD]),
+        threads_cpu_s(&[""]),
+    );
+    let answer_bytes = s.runtime.block_on(fleet_once(&mut s.client, &s.requests));
+    let per_vehicle = |x: f64| x / FLEET_VEHICLES as f64;
+    let fleet_compute_s = per_vehicle(threads_cpu_s(&[COMPUTE_THREAD]) - compute0);
+    let fleet_runtime_s = per_vehicle(threads_cpu_s(&[SERVER_THREAD]) - runtime0);
+    let fleet_all_s = per_vehicle(threads_cpu_s(&[""]) - all0);
+    let local_all_s = per_vehicle(in_process_once(&s.nights, &s.zones, threads));
     // Server CPU per call against the same call's model time, both as thread CPU.
     const CPU_CALLS: u32 = 2_000;
-    let server_threads = [SERVER_THREAD, COMPUTE_THREAD];
     let before_s = threads_cpu_s(&server_threads);
     for _ in 0..CPU_CALLS {
         s.runtime
@@ -361,6 +391,17 @@ fn ratios(s: &mut Setup) {
     println!(
         "  ratio fleet / in-process     {:>9.2}  (same thread count; target >= 0.90)",
         fleet_vps / local_vps
+    );
+    println!(
+        "  fleet CPU per vehicle        {:>9.1} µs compute threads, {:.1} µs server runtime, {:.1} µs client and the rest; in-process {:.1} µs",
+        us(fleet_compute_s),
+        us(fleet_runtime_s),
+        us(fleet_all_s - fleet_compute_s - fleet_runtime_s),
+        us(local_all_s)
+    );
+    println!(
+        "  fleet answer size            {:>9.0} bytes per vehicle (encoded)",
+        answer_bytes as f64 / FLEET_VEHICLES as f64
     );
     println!(
         "  AssessVehicle sequential     {:>9.0} calls/s ({:.0} µs)",

@@ -165,7 +165,14 @@ impl StartMarginApi {
             let calibration =
                 self.learning
                     .lookup(tenant.as_str(), vehicle_id, convert::archetype_of(&night));
-            let job = self.pool.run(Lane::Unary, move || {
+            // A sampling request runs the model hundreds of times: always on the compute pool,
+            // where the request timeout can give up on it.
+            let may_run_inline = night
+                .options
+                .as_ref()
+                .is_none_or(|o| o.probability_method() != pb::ProbabilityMethod::Sampling);
+            let started = std::time::Instant::now();
+            let job = self.pool.run_unary(may_run_inline, move || {
                 let _permit = permit;
                 convert::decide_calibrated(
                     &night,
@@ -176,14 +183,19 @@ impl StartMarginApi {
                 )
                 .map(|d| d.message)
             });
+            let deadline_exceeded = || {
+                Status::deadline_exceeded(format!(
+                    "the assessment took longer than the server's {} s request timeout",
+                    self.limits.request_timeout.as_secs_f64()
+                ))
+            };
             let assessment = match tokio::time::timeout(self.limits.request_timeout, job).await {
-                Ok(result) => result?,
-                Err(_) => {
-                    return Err(Status::deadline_exceeded(format!(
-                        "the assessment took longer than the server's {} s request timeout",
-                        self.limits.request_timeout.as_secs_f64()
-                    )));
+                // An inline run cannot be given up on while it runs: judged when it ends.
+                Ok(_) if started.elapsed() > self.limits.request_timeout => {
+                    return Err(deadline_exceeded());
                 }
+                Ok(result) => result?,
+                Err(_) => return Err(deadline_exceeded()),
             };
             Ok(Response::new(pb::AssessVehicleResponse {
                 assessment: Some(assessment),

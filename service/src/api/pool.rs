@@ -6,13 +6,22 @@
 //! waiting. So a unary call waits at most for the jobs already running (one vehicle each), never
 //! for a fleet or a watch re-score queued before it, and one big stream cannot starve another.
 //!
+//! One exception saves a hand-off where it is pure cost: when the pool is idle (a thread waits
+//! and nothing is queued), one unary call at a time runs on the runtime thread that received it
+//! ([`ComputePool::run_unary`]), if the runtime has another thread to serve the connections
+//! meanwhile and the caller allows it (the service keeps long sampling requests on the pool). A
+//! hand-off wakes a sleeping compute thread and then the waiting task, two wake-ups across cores
+//! that cost about 100 µs of server CPU per call on the 2-core machine of the README's figures.
+//! Under load the pool is busy and unary calls queue in their lane as before; at most one
+//! runtime thread is ever held by an assessment.
+//!
 //! [`Budget`] bounds what streams hold of the global concurrency limit: all streams together at
 //! most `stream_share_pct` of it (the rest stays for unary calls), one tenant's streams at most
 //! `max_in_flight_per_tenant`, and each stream its own window (fleet slots, watch in-flight).
 
 use std::collections::{HashMap, VecDeque};
 use std::panic::{AssertUnwindSafe, catch_unwind};
-use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::{Arc, Condvar, Mutex, MutexGuard};
 
 use tokio::sync::{OwnedSemaphorePermit, Semaphore, oneshot};
@@ -44,6 +53,9 @@ struct Queues {
     streams: HashMap<u64, VecDeque<Job>>,
     /// Streams with jobs waiting, in the order they are served.
     ring: VecDeque<u64>,
+    /// Threads waiting for a job: a submit wakes one only when there is one (a wake is a system
+    /// call, and with every thread busy nobody needs it).
+    idle: usize,
     stopped: bool,
 }
 
@@ -78,6 +90,8 @@ impl Shared {
 /// A fixed set of threads that run CPU-bound work, unary first, streams round-robin.
 pub struct ComputePool {
     shared: Arc<Shared>,
+    /// A unary call runs on a runtime thread now (see the module doc).
+    inline_busy: AtomicBool,
 }
 
 impl std::fmt::Debug for ComputePool {
@@ -108,19 +122,24 @@ impl ComputePool {
                                 if let Some(job) = q.next() {
                                     break job;
                                 }
+                                q.idle += 1;
                                 q = shared.ready.wait(q).unwrap_or_else(|e| e.into_inner());
+                                q.idle -= 1;
                             }
                         };
                         job();
                     }
                 })?;
         }
-        Ok(Self { shared })
+        Ok(Self {
+            shared,
+            inline_busy: AtomicBool::new(false),
+        })
     }
 
     /// Queues `job` in `lane`. The job must catch its own panics.
     pub fn submit(&self, lane: Lane, job: Job) -> Result<(), ApiError> {
-        {
+        let wake = {
             let mut q = self.shared.lock();
             if q.stopped {
                 return Err(ApiError::Unavailable("compute pool stopped".to_string()));
@@ -136,8 +155,11 @@ impl ComputePool {
                     }
                 }
             }
+            q.idle > 0
+        };
+        if wake {
+            self.shared.ready.notify_one();
         }
-        self.shared.ready.notify_one();
         Ok(())
     }
 
@@ -160,6 +182,64 @@ impl ComputePool {
         )?;
         rx.await
             .map_err(|_| ApiError::Internal("compute thread ended without a result".to_string()))?
+    }
+}
+
+impl ComputePool {
+    /// Runs a unary call's `f`: on the calling runtime thread when `may_run_inline`, the pool is
+    /// idle, the runtime has a second thread and no other unary call runs inline; else in the
+    /// unary lane ([`ComputePool::run`]). A panic in `f` becomes an internal error either way.
+    pub async fn run_unary<T, F>(&self, may_run_inline: bool, f: F) -> Result<T, ApiError>
+    where
+        T: Send + 'static,
+        F: FnOnce() -> Result<T, ApiError> + Send + 'static,
+    {
+        let place = if may_run_inline && runtime_has_spare_thread() {
+            self.try_inline()
+        } else {
+            None
+        };
+        match place {
+            Some(_held) => catch_unwind(AssertUnwindSafe(f))
+                .unwrap_or_else(|_| Err(ApiError::Internal("the assessment panicked".to_string()))),
+            None => self.run(Lane::Unary, f).await,
+        }
+    }
+
+    /// The inline place, when the pool is idle (a thread waits, no job is queued) and the place
+    /// is free.
+    fn try_inline(&self) -> Option<InlinePlace<'_>> {
+        {
+            let q = self.shared.lock();
+            if q.stopped || q.idle == 0 || !q.unary.is_empty() || !q.ring.is_empty() {
+                return None;
+            }
+        }
+        self.inline_busy
+            .compare_exchange(false, true, Ordering::Acquire, Ordering::Relaxed)
+            .ok()
+            .map(|_| InlinePlace(&self.inline_busy))
+    }
+
+    /// Whether a unary call runs on a runtime thread now (for the tests).
+    #[cfg(test)]
+    fn inline_busy(&self) -> bool {
+        self.inline_busy.load(Ordering::Acquire)
+    }
+}
+
+/// Whether the current tokio runtime has more than one worker thread: one held by an inline
+/// assessment leaves another for the connections.
+fn runtime_has_spare_thread() -> bool {
+    tokio::runtime::Handle::try_current().is_ok_and(|h| h.metrics().num_workers() >= 2)
+}
+
+/// The one inline place, given back when dropped (also when the job panics).
+struct InlinePlace<'a>(&'a AtomicBool);
+
+impl Drop for InlinePlace<'_> {
+    fn drop(&mut self) {
+        self.0.store(false, Ordering::Release);
     }
 }
 
@@ -304,6 +384,95 @@ mod tests {
         gate_tx.send(()).unwrap();
         let order: Vec<String> = (0..5).map(|_| order_rx.recv().unwrap()).collect();
         assert_eq!(order, ["u", "a1", "b1", "a2", "a3"]);
+    }
+
+    /// Waits until `n` threads of `pool` wait for work (they start asynchronously).
+    fn wait_idle(pool: &ComputePool, n: usize) {
+        let until = std::time::Instant::now() + std::time::Duration::from_secs(10);
+        while pool.shared.lock().idle < n {
+            assert!(
+                std::time::Instant::now() < until,
+                "pool threads never got idle"
+            );
+            std::thread::sleep(std::time::Duration::from_millis(1));
+        }
+    }
+
+    fn on_compute_thread() -> bool {
+        std::thread::current()
+            .name()
+            .is_some_and(|n| n.starts_with("startmargin-compute"))
+    }
+
+    #[test]
+    fn unary_call_on_an_idle_pool_runs_inline_once_at_a_time() {
+        let rt = tokio::runtime::Builder::new_multi_thread()
+            .worker_threads(2)
+            .build()
+            .unwrap();
+        let pool = Arc::new(ComputePool::new(2).unwrap());
+        wait_idle(&pool, 2);
+        let caller = std::thread::current().id();
+        let inner = Arc::clone(&pool);
+        let (ran_on, busy, second_inline) = rt
+            .block_on(pool.run_unary(true, move || {
+                // While this call holds the inline place, another unary call is queued.
+                Ok((
+                    std::thread::current().id(),
+                    inner.inline_busy(),
+                    inner.try_inline().is_some(),
+                ))
+            }))
+            .unwrap();
+        assert_eq!(ran_on, caller, "ran on the calling thread");
+        assert!(busy && !second_inline, "one inline call at a time");
+        assert!(!pool.inline_busy(), "the place is given back");
+        // A panic is an internal error and gives the place back too.
+        let panicked =
+            rt.block_on(pool.run_unary(true, || -> Result<(), ApiError> { panic!("boom") }));
+        assert!(matches!(panicked, Err(ApiError::Internal(_))));
+        assert!(!pool.inline_busy());
+        // Not when the caller forbids it, nor on a runtime with a single thread.
+        let on_pool = rt.block_on(pool.run_unary(false, || Ok(on_compute_thread())));
+        assert!(on_pool.unwrap());
+        let single = tokio::runtime::Builder::new_current_thread()
+            .build()
+            .unwrap();
+        wait_idle(&pool, 2);
+        let on_pool = single.block_on(pool.run_unary(true, || Ok(on_compute_thread())));
+        assert!(on_pool.unwrap());
+    }
+
+    #[test]
+    fn unary_call_on_a_busy_pool_waits_in_its_lane() {
+        let rt = tokio::runtime::Builder::new_multi_thread()
+            .worker_threads(2)
+            .build()
+            .unwrap();
+        let pool = ComputePool::new(1).unwrap();
+        wait_idle(&pool, 1);
+        // Hold the only thread: the pool is busy, so the call goes to it once it is free.
+        let (gate_tx, gate_rx) = mpsc::channel::<()>();
+        pool.submit(
+            Lane::Stream(7),
+            Box::new(move || {
+                let _ = gate_rx.recv();
+            }),
+        )
+        .unwrap();
+        let opened = std::thread::spawn(move || {
+            std::thread::sleep(std::time::Duration::from_millis(20));
+            gate_tx.send(()).unwrap();
+        });
+        let on_pool = rt
+            .block_on(pool.run_unary(true, || Ok(on_compute_thread())))
+            .unwrap();
+        opened.join().unwrap();
+        assert!(
+            on_pool,
+            "a busy pool runs the unary call on a compute thread"
+        );
+        assert!(!pool.inline_busy());
     }
 
     #[test]
