@@ -769,10 +769,7 @@ fn evaluate(
     detail: Detail,
 ) -> Result<Evaluated, ModelError> {
     validate(night)?;
-    let start = start_state(night)?;
-    let fuel_level = night.telemetry.fuel_level_fraction.unwrap_or(0.5);
-    check_range("fuel_level_fraction", fuel_level, 0.0, 1.0, "0–100 %")?;
-    let nodes = build_nodes(night, fuel_level);
+    let (start, nodes) = thermal_setup(night)?;
     let heater = heater_schedule(night);
     let soc = state_of_charge(night)?;
 
@@ -809,7 +806,7 @@ fn evaluate(
             point.cranking.result.crank_rpm - night.engine.min_start_speed_rpm
         },
         battery_freeze_k: point.soaked.battery_t_k - battery::electrolyte_freezing_point_k(soc),
-        fuel_flow_k: gel.margin_to_cfpp_k.min(gel.margin_to_pour_point_k),
+        fuel_flow_k: fuel_flow_margin_k(&gel),
     };
     Ok(Evaluated {
         start,
@@ -823,6 +820,35 @@ fn evaluate(
         binding: modes.binding(),
         modes,
     })
+}
+
+/// The night's start state and thermal nodes.
+fn thermal_setup(night: &VehicleNight) -> Result<(StartState, Nodes), ModelError> {
+    let start = start_state(night)?;
+    let fuel_level = night.telemetry.fuel_level_fraction.unwrap_or(0.5);
+    check_range("fuel_level_fraction", fuel_level, 0.0, 1.0, "0–100 %")?;
+    Ok((start, build_nodes(night, fuel_level)))
+}
+
+/// The fuel-flow margin of an already validated `night` if its fuel had the cold-flow limits
+/// `cold_flow`, K: [`evaluate`]'s fuel mode alone. The other modes do not depend on the cold-flow
+/// limits (the cetane number is the fuel's own), so a change of the limits alone needs no start
+/// computation: the fuel axis of the sigma points.
+pub(crate) fn fuel_flow_margin_in(
+    night: &VehicleNight,
+    cold_flow: &ColdFlowProperties,
+    ctx: &mut NightContext,
+) -> Result<f64, ModelError> {
+    let (start, nodes) = thermal_setup(night)?;
+    let mut soak = ctx.soaks.soak(night, &nodes, &start)?;
+    let (gel, _) =
+        soak.fuel_outlook(&night.forecast.view(), &start, night.departure_s, cold_flow)?;
+    Ok(fuel_flow_margin_k(&gel))
+}
+
+/// The fuel-flow mode's margin from a gel outlook, K: the nearer of the CFPP and the pour point.
+fn fuel_flow_margin_k(gel: &GelOutlook) -> f64 {
+    gel.margin_to_cfpp_k.min(gel.margin_to_pour_point_k)
 }
 
 /// The cause behind a binding mode, or none when that mode (and so every mode) is comfortable.

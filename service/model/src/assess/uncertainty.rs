@@ -22,9 +22,14 @@
 //! Deterministic: the same night and key always give the same probability.
 
 use super::shared::NightContext;
-use super::{Assessment, FailureMode, ModeMargins, Probe, VehicleNight, assess, probe_in};
+use super::{
+    Assessment, FailureMode, ModeMargins, Probe, VehicleNight, assess, fuel_flow_margin_in,
+    probe_in,
+};
 use crate::error::ModelError;
-use crate::fuel::{FuelBase, cold_flow_properties};
+use crate::fuel::{
+    ColdFlowProperties, FuelBase, FuelDescription, cetane_number, cold_flow_properties,
+};
 
 /// Structural (model) error of the start margin, one standard deviation, K (estimate: about the
 /// spread between the published start limits and the model's predictions of the validation
@@ -204,6 +209,8 @@ struct Perturbation {
 }
 
 const DIMENSIONS: usize = 4;
+/// The axis of the fuel's cold-flow limits (see [`axis`]).
+const FUEL_AXIS: usize = 3;
 
 fn perturbed(
     night: &VehicleNight,
@@ -224,20 +231,31 @@ fn perturbed(
     n.battery.health_fraction =
         (n.battery.health_fraction + p.health * u.health_sigma).clamp(0.05, 1.0);
     if p.fuel != 0.0 {
-        let props = cold_flow_properties(&n.fuel.description)?;
-        let d = p.fuel * u.fuel_sigma_k;
-        n.fuel.description.base = FuelBase::Measured(crate::fuel::ColdFlowProperties {
-            cloud_point_k: props.cloud_point_k + d,
-            cfpp_k: props.cfpp_k + d,
-            pour_point_k: props.pour_point_k + d,
-        });
-        // The derived properties already include blending and additive effects.
-        n.fuel.description.biodiesel_fraction = 0.0;
-        n.fuel.description.no1_blend_fraction = 0.0;
-        n.fuel.description.additive = None;
+        n.fuel.description = shifted_fuel(&night.fuel.description, p.fuel * u.fuel_sigma_k)?;
     }
     n.options.include_margin_path = false;
     Ok(n)
+}
+
+/// `fuel` with its cold-flow limits (cloud point, CFPP, pour point) all `d_k` warmer, as a
+/// measured fuel with the same cetane number.
+fn shifted_fuel(fuel: &FuelDescription, d_k: f64) -> Result<FuelDescription, ModelError> {
+    let props = cold_flow_properties(fuel)?;
+    Ok(FuelDescription {
+        base: FuelBase::Measured(ColdFlowProperties {
+            cloud_point_k: props.cloud_point_k + d_k,
+            cfpp_k: props.cfpp_k + d_k,
+            pour_point_k: props.pour_point_k + d_k,
+        }),
+        // The derived properties already include blending and additive effects.
+        biodiesel_fraction: 0.0,
+        no1_blend_fraction: 0.0,
+        additive: None,
+        // A measured base alone would read as the conservative default cetane number: keep the
+        // fuel's own, so the fuel axis moves the cold-flow limits and nothing else.
+        cetane_number: Some(cetane_number(fuel)?),
+        ..*fuel
+    })
 }
 
 /// No-start probability of a night (the state of charge the assessment used is `soc0`): runs the
@@ -298,14 +316,30 @@ pub(super) fn probability_around(
         Method::SigmaPoints => {
             let spread = 3.0_f64.sqrt();
             for i in 0..DIMENSIONS {
-                let plus = probe_in(&perturbed(night, &u, &axis(i, spread), soc0)?, ctx)?;
-                let minus = probe_in(&perturbed(night, &u, &axis(i, -spread), soc0)?, ctx)?;
+                let (plus, minus) = if i == FUEL_AXIS {
+                    // The cold-flow limits move the fuel mode alone (`fuel_flow_margin_in`).
+                    let fuel_point = |s: f64, ctx: &mut NightContext| {
+                        let fuel = shifted_fuel(&night.fuel.description, s * u.fuel_sigma_k)?;
+                        let margin_k =
+                            fuel_flow_margin_in(night, &cold_flow_properties(&fuel)?, ctx)?;
+                        Ok::<_, ModelError>(ModeMargins {
+                            fuel_flow_k: margin_k,
+                            ..*centre
+                        })
+                    };
+                    (fuel_point(spread, ctx)?, fuel_point(-spread, ctx)?)
+                } else {
+                    (
+                        probe_in(&perturbed(night, &u, &axis(i, spread), soc0)?, ctx)?.modes,
+                        probe_in(&perturbed(night, &u, &axis(i, -spread), soc0)?, ctx)?.modes,
+                    )
+                };
                 for ((mode, axes), total) in FailureMode::ALL
                     .iter()
                     .zip(axis_variance.iter_mut())
                     .zip(variance.iter_mut())
                 {
-                    let d = (plus.modes.get(*mode) - minus.modes.get(*mode)) / (2.0 * spread);
+                    let d = (plus.get(*mode) - minus.get(*mode)) / (2.0 * spread);
                     axes[i] = d * d;
                     *total += d * d;
                 }

@@ -385,3 +385,49 @@ fn a_hostile_forecast_spread_is_an_error() {
         }
     }
 }
+
+// ---------------------------------------------------------------------------------------------
+// The fuel axis
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn the_fuel_axis_moves_the_cold_flow_limits_and_nothing_else() {
+    use crate::fuel::{FuelGrade, TemperateClass, cetane_number};
+    // EN 590 grades carry a cetane number of 51, a measured base alone reads as 40 (fuel.rs): a
+    // shifted fuel keeps the fuel's own.
+    let mut n = night("compact-di-i4", -10.0);
+    n.fuel.description.base = FuelBase::Grade(FuelGrade::En590Temperate(TemperateClass::F));
+    n.fuel.description.cetane_number = None;
+    let shifted = shifted_fuel(&n.fuel.description, 2.0).unwrap();
+    assert_eq!(cetane_number(&shifted).unwrap(), 51.0);
+    let before = cold_flow_properties(&n.fuel.description).unwrap();
+    let after = cold_flow_properties(&shifted).unwrap();
+    assert_eq!(after.cfpp_k, before.cfpp_k + 2.0);
+    assert_eq!(after.cloud_point_k, before.cloud_point_k + 2.0);
+    assert_eq!(after.pour_point_k, before.pour_point_k + 2.0);
+
+    // The fuel-only points give what a full run of the shifted night gives, on every mode.
+    for grade in [
+        FuelGrade::UsNo2,
+        FuelGrade::En590Temperate(TemperateClass::F),
+    ] {
+        n.fuel.description.base = FuelBase::Grade(grade);
+        let centre = assess(&n).unwrap();
+        for d_k in [3.0, -3.0] {
+            let mut full = n.clone();
+            full.fuel.description = shifted_fuel(&n.fuel.description, d_k).unwrap();
+            let whole = assess(&full).unwrap();
+            let mut ctx = NightContext::new();
+            let fuel_only = fuel_flow_margin_in(
+                &n,
+                &cold_flow_properties(&full.fuel.description).unwrap(),
+                &mut ctx,
+            )
+            .unwrap();
+            assert_eq!(fuel_only, whole.modes.fuel_flow_k, "{grade:?} {d_k}");
+            assert_eq!(whole.modes.charge_k, centre.modes.charge_k, "{grade:?} {d_k}");
+            assert_eq!(whole.modes.cranking_rpm, centre.modes.cranking_rpm);
+            assert_eq!(whole.modes.battery_freeze_k, centre.modes.battery_freeze_k);
+        }
+    }
+}
