@@ -40,6 +40,7 @@
 
 use crate::constants::ZERO_CELSIUS_K;
 use crate::error::{ModelError, check_range};
+use std::sync::OnceLock;
 
 /// Oil density used to convert between dynamic and kinematic viscosity, kg/m³. **Estimate** (0.87 kg/L,
 /// typical fresh engine oil), held constant with temperature.
@@ -241,8 +242,43 @@ impl WaltherLine {
 }
 
 /// The Walther line this module uses for `grade` (see the module doc for the two points).
+///
+/// The lines of all J300 grades are computed once and kept: every start computation reads the
+/// oil's viscosity, and a line costs six logarithms.
 pub fn walther_line(grade: SaeGrade) -> Result<WaltherLine, ModelError> {
     grade.validate()?;
+    // Validated: both numbers are in the tables.
+    let w = grade.winter.map_or(0, |w| {
+        1 + J300_W_GRADES
+            .iter()
+            .position(|&(g, _, _)| g == w)
+            .unwrap_or(0)
+    });
+    let h = J300_HOT_GRADES
+        .iter()
+        .position(|&(g, _, _)| g == grade.hot)
+        .unwrap_or(0);
+    static LINES: OnceLock<LineTable> = OnceLock::new();
+    LINES.get_or_init(compute_lines)[w][h].clone()
+}
+
+/// Walther lines by (0 = monograde, else 1 + W-grade index) and hot-grade index.
+type LineTable =
+    [[Result<WaltherLine, ModelError>; J300_HOT_GRADES.len()]; J300_W_GRADES.len() + 1];
+
+fn compute_lines() -> LineTable {
+    std::array::from_fn(|w| {
+        std::array::from_fn(|h| {
+            compute_walther_line(SaeGrade {
+                winter: w.checked_sub(1).map(|i| J300_W_GRADES[i].0),
+                hot: J300_HOT_GRADES[h].0,
+            })
+        })
+    })
+}
+
+/// The Walther line of a valid `grade`, computed.
+fn compute_walther_line(grade: SaeGrade) -> Result<WaltherLine, ModelError> {
     let (kv_lo, kv_hi) = grade
         .kv100_band_mm2_per_s()
         .ok_or(ModelError::Inconsistent("unknown SAE hot grade"))?;
@@ -284,6 +320,32 @@ mod tests {
 
     fn grade(s: &str) -> SaeGrade {
         SaeGrade::parse(s).expect("valid grade")
+    }
+
+    #[test]
+    fn kept_lines_are_the_computed_ones_for_every_j300_grade() {
+        let winters = std::iter::once(None).chain(J300_W_GRADES.iter().map(|&(w, _, _)| Some(w)));
+        for winter in winters {
+            for &(hot, _, _) in &J300_HOT_GRADES {
+                let g = SaeGrade { winter, hot };
+                assert_eq!(walther_line(g), compute_walther_line(g), "{g:?}");
+            }
+        }
+        // Grades outside J300 are still refused.
+        assert!(
+            walther_line(SaeGrade {
+                winter: Some(7),
+                hot: 40
+            })
+            .is_err()
+        );
+        assert!(
+            walther_line(SaeGrade {
+                winter: None,
+                hot: 35
+            })
+            .is_err()
+        );
     }
 
     #[test]
