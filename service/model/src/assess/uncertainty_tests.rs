@@ -425,7 +425,10 @@ fn the_fuel_axis_moves_the_cold_flow_limits_and_nothing_else() {
             )
             .unwrap();
             assert_eq!(fuel_only, whole.modes.fuel_flow_k, "{grade:?} {d_k}");
-            assert_eq!(whole.modes.charge_k, centre.modes.charge_k, "{grade:?} {d_k}");
+            assert_eq!(
+                whole.modes.charge_k, centre.modes.charge_k,
+                "{grade:?} {d_k}"
+            );
             assert_eq!(whole.modes.cranking_rpm, centre.modes.cranking_rpm);
             assert_eq!(whole.modes.battery_freeze_k, centre.modes.battery_freeze_k);
         }
