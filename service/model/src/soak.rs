@@ -578,13 +578,17 @@ impl SoakTrace {
         let n_steps = forecast.hours.len();
         let first = (((initial_at_s - forecast.start_s) / forecast.step_s).floor() as usize)
             .min(n_steps - 1);
+        // Room for every step end to the end of the forecast: a trace grows by one point per
+        // step, and growing it one reallocation at a time cost more than its arithmetic.
+        let mut points = Vec::with_capacity(n_steps - first + 1);
+        points.push(TracePoint {
+            at_s: initial_at_s,
+            t_k,
+            next_step: first,
+        });
         let mut trace = Self {
             node: *node,
-            points: vec![TracePoint {
-                at_s: initial_at_s,
-                t_k,
-                next_step: first,
-            }],
+            points,
             until_s: initial_at_s,
         };
         trace.extend_to(forecast, until_s)?;
