@@ -578,8 +578,8 @@ impl SoakTrace {
         let n_steps = forecast.hours.len();
         let first = (((initial_at_s - forecast.start_s) / forecast.step_s).floor() as usize)
             .min(n_steps - 1);
-        // Room for every step end to the end of the forecast: a trace grows by one point per
-        // step, and growing it one reallocation at a time cost more than its arithmetic.
+        // Room for every step end to the end of the forecast at once: a trace grows by one point
+        // per step, and growing it step by step reallocated it several times per node.
         let mut points = Vec::with_capacity(n_steps - first + 1);
         points.push(TracePoint {
             at_s: initial_at_s,
