@@ -342,7 +342,7 @@ mod tests {
         assert!(cranking_air_mass_flow_kg_s(0.010, 0.0, 101_325.0, 253.15, 0.85, 287.05).is_err());
     }
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn glow_gain_grows_with_preheat_to_its_plateau(
             plateau in 0.0..500.0_f64, tau in 0.05..60.0_f64,

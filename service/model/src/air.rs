@@ -976,7 +976,7 @@ mod tests {
         assert!(cp_j_per_kg_k(f64::NAN).is_nan());
     }
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn cp_rises_and_gamma_falls_above_300_k(t in 300.0f64..5900.0) {
             // Vibrational modes of N2/O2 make cp rise with T over this range (NBS table, §1.5).

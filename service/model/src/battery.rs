@@ -384,7 +384,7 @@ mod tests {
         }
     }
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn colder_or_emptier_or_older_means_more_resistance(
             cca in 50.0f64..5000.0, soc in 0.0f64..1.0, t in 213.15f64..343.15,

@@ -47,7 +47,7 @@
 //! there to TDC, where the losses concentrate; more steps when the leak or wall-loss rate, estimated up
 //! front at the isentropic state, would exceed one e-folding per step (slow cranking with large leaks).
 //! A typical call takes 8 steps. A step that a large leak brings near crankcase pressure (where the
-//! orifice flow ∝ √Δp is stiff) is redone in 32 substeps; whether the leak can hold the charge there
+//! orifice flow ∝ √Δp is stiff: below 2 × crankcase pressure, just above the choked ratio) is redone in 32 substeps; whether the leak can hold the charge there
 //! is decided from the leak's volume flow against the piston's sweep, not from the state, so the
 //! charge that starts at crankcase pressure at IVC (the assessment's case) is not refined for
 //! nothing (tested: no redone step for any archetype at 60–300 rpm). sin/cos by rotation recurrence, the nozzle's
@@ -132,8 +132,10 @@ const FAST_MAX_RATE_STEP: f64 = 1.0;
 /// Substeps of a fast step redone because the leak brought the charge near crankcase pressure.
 const FAST_REFINE_SUBSTEPS: u32 = 32;
 /// A fast step ending below this multiple of the crankcase pressure, in a stretch of the stroke where
-/// the leak can hold the charge there (`Run::leak_holds_charge`), is redone in substeps.
-const FAST_REFINE_PRESSURE_RATIO: f64 = 1.5;
+/// the leak can hold the charge there (`Run::leak_holds_charge`), is redone in substeps. Just above
+/// the choked ratio (1/0.528 = 1.89 at γ = 1.4, reference.md §6.1): below it the orifice flow goes
+/// as √Δp and is stiff. (At 1.5 a charge drained to 1.65 × crankcase pressure by TDC was 0.55 K off.)
+const FAST_REFINE_PRESSURE_RATIO: f64 = 2.0;
 /// Step of the reference integrator, degrees.
 const REFERENCE_STEP_DEG: f64 = 0.05;
 /// Largest effective leak area accepted, m² (50 mm²).
@@ -605,7 +607,7 @@ fn fast_segment(
         peak.push(theta, p0, dp0);
         // A large leak can hold the charge near crankcase pressure, where the orifice flow (∝ √Δp) is
         // stiff and a coarse explicit step is inaccurate or overshoots below it. Redo such a step
-        // (one the leak can hold, ending below 1.5 × crankcase pressure) in substeps, and any step
+        // (one the leak can hold, ending below 2 × crankcase pressure, i.e. unchoked) in substeps, and any step
         // that left the physical range. Whether the leak can hold the charge is decided by the leak's
         // flow against the piston's sweep (`Run::leak_holds_charge`), not by comparing the state
         // with the crankcase pressure: at IVC the charge starts at crankcase pressure to the last
@@ -1477,7 +1479,7 @@ mod tests {
         }
     }
 
-    proptest! {
+    fixed_proptest! {
         #![proptest_config(ProptestConfig::with_cases(40))]
         #[test]
         fn fast_agrees_with_reference_across_the_box(
@@ -1506,7 +1508,7 @@ mod tests {
         }
     }
 
-    proptest! {
+    fixed_proptest! {
         #![proptest_config(ProptestConfig::with_cases(64))]
         #[test]
         fn monotone_in_leak_speed_and_wall(rpm in 60.0f64..300.0, t_c in -40.0f64..30.0,
@@ -1539,5 +1541,46 @@ mod tests {
             prop_assert!(r.tdc_core_t_k >= r.tdc_mean_t_k);
             prop_assert!(r.wall_heat_j > 0.0 && r.tdc_mass_kg <= r.trapped_mass_kg);
         }
+    }
+    #[test]
+    fn charge_drained_to_near_crankcase_pressure_by_tdc_is_refined() {
+        // A point random search found: a 70 mm bore at 105 rpm with a 3 mm² leak and adiabatic walls
+        // loses 93 % of its charge and reaches TDC at 1.65 × crankcase pressure, below the choked
+        // ratio (1.89 at γ = 1.4), where the orifice flow ∝ √Δp is stiff. When steps were redone only
+        // below 1.5 × crankcase pressure, the fast core was 0.55 K off the reference here.
+        let input = CompressionInput {
+            geometry: EngineGeometry {
+                bore_m: 0.07,
+                stroke_m: 1.1 * 0.07,
+                con_rod_m: 3.730_174_510_033_138_7 * 0.55 * 0.07,
+                compression_ratio: 22.886_431_965_691_738,
+                cylinders: 4,
+                ivc_deg_abdc: 41.891_673_011_667_635,
+            },
+            crank_rpm: 104.950_212_465_152_02,
+            intake_t_k: 39.982_929_823_226_05 + 273.15,
+            wall_t_k: 273.15,
+            heat_transfer: WallHeatTransfer::Hohenberg,
+            heat_transfer_multiplier: 0.0,
+            leak_area_m2: 2.980_493_578_841_683_5e-6,
+            ..cold_crank(small_engine())
+        };
+        let (f, steps) = integrate_fast(&input).unwrap();
+        let r = compress_reference(&input).unwrap();
+        assert!(r.tdc_mass_kg < 0.1 * r.trapped_mass_kg, "{r:?}");
+        assert!(r.tdc_p_pa < 1.89 * input.crankcase_p_pa, "{r:?}");
+        assert!(steps > 10, "the steps near TDC are redone: {steps}");
+        assert!(
+            (f.tdc_mean_t_k - r.tdc_mean_t_k).abs() <= 0.5,
+            "{f:?} {r:?}"
+        );
+        assert!(
+            (f.tdc_core_t_k - r.tdc_core_t_k).abs() <= 0.5,
+            "{f:?} {r:?}"
+        );
+        assert!(
+            (f.peak_p_pa / r.peak_p_pa - 1.0).abs() <= 5e-3,
+            "{f:?} {r:?}"
+        );
     }
 }

@@ -638,7 +638,7 @@ mod tests {
         cranking_speed(i).unwrap().crank_rpm
     }
 
-    proptest! {
+    fixed_proptest! {
         // Metamorphic laws (model.md §2): each change that helps the starter or eases the engine
         // never lowers the cranking speed (strictly raises it whenever the engine turns).
 

@@ -270,7 +270,7 @@ mod tests {
         ));
     }
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn richer_and_colder_fuel_cool_more(
             afr in 10.0..200.0_f64, fuel_t_k in 220.0..340.0_f64, charge_t_k in 400.0..1000.0_f64,

@@ -1183,7 +1183,7 @@ mod tests {
         prop_oneof![3 => lo..hi, 1 => any::<f64>()]
     }
 
-    proptest! {
+    fixed_proptest! {
         // Project rule (reference.md §9.6): CP, CFPP and PP never fall as the biodiesel share rises.
         #[test]
         fn properties_non_decreasing_in_biodiesel_fraction(
@@ -1226,7 +1226,7 @@ mod tests {
         fn blends_stay_ordered_and_in_range(
             grade in grade_strategy(), feedstock in feedstock_strategy(),
             bio in 0.0f64..=1.0, no1 in 0.0f64..=1.0,
-            improvement in 0.0f64..=20.0, added_c in -80.0f64..=40.0, use_additive: bool,
+            improvement in 0.0f64..=20.0, added_c in -80.0f64..=40.0, use_additive in any::<bool>(),
         ) {
             let additive = use_additive.then_some(AdditiveTreatment {
                 cfpp_improvement_k: improvement, fuel_t_when_added_k: c(added_c),

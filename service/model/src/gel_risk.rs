@@ -934,7 +934,7 @@ mod tests {
             .level
     }
 
-    proptest! {
+    fixed_proptest! {
         // A colder path (every point no warmer at every sample) never lowers the risk level, nor
         // raises the lowest temperature or shortens the time below CP (monotonicity of the rules).
         #[test]

@@ -371,7 +371,7 @@ mod tests {
         }
     }
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn volume_bounded_symmetric_and_monotone(theta in 0.0f64..180.0, b in 0.05f64..0.2,
                                                   l_over_b in 0.8f64..1.4, r in 12.0f64..24.0,

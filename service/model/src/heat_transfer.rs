@@ -206,7 +206,7 @@ mod tests {
         assert!(hohenberg_h_w_per_m2_k(VC_M3, P_PA, T_K, -1.0).is_nan());
     }
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn exponents_as_published(p in 1e5f64..1e7, t in 250.0f64..1200.0, sp in 0.2f64..15.0,
                                   v in 1e-5f64..1e-3, k in 1.1f64..3.0) {

@@ -866,7 +866,7 @@ mod tests {
         ]
     }
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn required_temperature_round_trips(
             c in any_correlation(), p_bar in 15.0..80.0_f64, window_ms in 5.0..100.0_f64,

@@ -17,6 +17,11 @@
 //! ```
 #![forbid(unsafe_code)]
 
+// Test support: property tests on a fixed sequence of cases (defined first so every module sees it).
+#[cfg(test)]
+#[macro_use]
+mod fixed_proptest;
+
 // Thermodynamics and engine geometry.
 pub mod air;
 pub mod compression;

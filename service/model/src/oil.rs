@@ -553,7 +553,7 @@ mod tests {
     const W: [u8; 6] = [0, 5, 10, 15, 20, 25];
     const HOT: [u8; 8] = [8, 12, 16, 20, 30, 40, 50, 60];
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn colder_is_thicker(wi in 0usize..7, hi in 0usize..8, t1 in OIL_T_MIN_K..OIL_T_MAX_K, dt in 0.01f64..100.0) {
             // Law: viscosity falls monotonically with temperature (ASTM D341 B > 0).

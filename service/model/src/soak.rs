@@ -1583,7 +1583,7 @@ mod tests {
             })
     }
 
-    proptest! {
+    fixed_proptest! {
         #[test]
         fn never_cools_below_the_coldest_forcing(
             node in arb_node(),

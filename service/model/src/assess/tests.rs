@@ -565,7 +565,7 @@ fn a_thinner_winter_oil_raises_the_margin() {
     );
 }
 
-proptest! {
+fixed_proptest! {
     #![proptest_config(ProptestConfig {
         cases: 48,
         failure_persistence: None,
@@ -775,7 +775,7 @@ fn any_value() -> impl Strategy<Value = f64> {
     ]
 }
 
-proptest! {
+fixed_proptest! {
     #![proptest_config(ProptestConfig {
         cases: 512,
         failure_persistence: None,

@@ -105,7 +105,7 @@ fn erfc_and_the_normal_quantile_agree_with_a_reference_library() {
     }
 }
 
-proptest! {
+fixed_proptest! {
     #[test]
     fn normal_cdf_is_a_symmetric_increasing_probability(x in -12.0..12.0_f64, dx in 0.0..3.0_f64) {
         // Laws of any cumulative distribution of a symmetric density.
@@ -338,7 +338,7 @@ fn the_probability_is_a_probability_and_rises_as_the_night_gets_colder() {
     }
 }
 
-proptest! {
+fixed_proptest! {
     #![proptest_config(ProptestConfig::with_cases(48))]
 
     #[test]
