@@ -4,7 +4,7 @@
 //! tonight are ranked by the probability they achieve; what cannot be done tonight (an oil change,
 //! a winter grade at the next fill, fitting a fuel heater) is listed apart, after them.
 //!
-//! The block-heater plug-in time is found by bisection on the full no-start probability: the
+//! The block-heater plug-in time is found by a root search on the full no-start probability: the
 //! latest plug-in time whose probability still meets the operator's target. When even plugging in
 //! at once does not meet it, the advice is "plug in now", with the best probability it reaches.
 //!
@@ -204,7 +204,7 @@ const SURROGATE_ROUNDS: u32 = 3;
 /// night's span over 2^10 (a later plug-in never lowers the probability: tested). `None` when the
 /// vehicle has no heater or meets the target without one.
 ///
-/// The search first brackets the time by bisection on an estimated probability (each time's
+/// The search first brackets the time by a regula-falsi search on an estimated probability (each time's
 /// central margins with the spreads of the all-night and no-heater ends, interpolated: one
 /// model run a time), then confirms the bracket with the real probability on both sides and
 /// bisects that down to the resolution: the plan's probability is always the real one at the
@@ -259,41 +259,52 @@ pub fn plan_block_heater_in(
     };
     let resolution_s = grid.resolution_s;
     let (mut early, mut early_outcome) = (start_s, all_night);
-    let (mut late, mut late_spreads) = (dep_s, without.probability.mode_spreads);
+    let (mut late, mut late_outcome) = (dep_s, without.clone());
     // The spreads of the real probability last computed, and where.
     let mut nearest = None;
-    // 1. Narrow the bracket cheaply, in a few rounds: bisection on the probability estimated from
-    //    each plug-in time's central margins (one model run a time) with spreads taken from real
-    //    probabilities nearby (the spreads change slowly with the plug-in time, the margins do
-    //    not), then the real probability at the estimate and one resolution after it.
+    // 1. Narrow the bracket cheaply, in a few rounds: a root search on the probability estimated
+    //    from each plug-in time's central margins (one model run a time) with spreads taken from
+    //    real probabilities nearby (the spreads change slowly with the plug-in time, the margins
+    //    do not), then the real probability at the estimate and one resolution after it.
     for _ in 0..SURROGATE_ROUNDS {
         if grid.inside(early, late).is_none() {
             break;
         }
         let estimate_s = {
-            let (mut lo, mut hi) = (early, late);
-            for _ in 0..PLUG_IN_HALVINGS {
-                let Some(mid) = grid.inside(lo, hi) else {
-                    break;
-                };
-                let spreads: [f64; 4] = match nearest {
+            let (e, l) = (
+                early_outcome.probability.mode_spreads,
+                late_outcome.probability.mode_spreads,
+            );
+            let (early_s, late_s) = (early, late);
+            let spreads_at = |t: f64| -> [f64; 4] {
+                match nearest {
                     Some(spreads) => spreads,
+                    // First round: between the two ends, by time.
                     None => {
-                        // First round: between the two ends, by time.
-                        let w = (mid - early) / (late - early);
-                        let e = early_outcome.probability.mode_spreads;
-                        std::array::from_fn(|k| e[k] + w * (late_spreads[k] - e[k]))
+                        let w = (t - early_s) / (late_s - early_s);
+                        std::array::from_fn(|k| e[k] + w * (l[k] - e[k]))
                     }
-                };
-                let n = plugged_in(night, mid);
-                let centre = probe_in(&n, ctx)?;
-                if estimated_probability(&n, &centre, &spreads) <= target {
-                    lo = mid;
-                } else {
-                    hi = mid;
                 }
-            }
-            lo
+            };
+            let gap = |ctx: &mut NightContext, t: f64| -> Result<f64, ModelError> {
+                let n = plugged_in(night, t);
+                let centre = probe_in(&n, ctx)?;
+                Ok(logit_gap(
+                    estimated_probability(&n, &centre, &spreads_at(t)),
+                    target,
+                ))
+            };
+            grid.latest_meeting(
+                (
+                    early,
+                    logit_gap(early_outcome.probability.probability, target),
+                ),
+                (
+                    late,
+                    logit_gap(late_outcome.probability.probability, target),
+                ),
+                |t| gap(ctx, t),
+            )?
         };
         // 2. The real probability at the estimate and one resolution later: when the estimate
         //    is right, the bracket is then one resolution wide.
@@ -306,7 +317,7 @@ pub fn plan_block_heater_in(
             if o.probability.probability <= target {
                 (early, early_outcome) = (t, o);
             } else {
-                (late, late_spreads) = (t, o.probability.mode_spreads);
+                (late, late_outcome) = (t, o);
                 break;
             }
         }
@@ -353,6 +364,72 @@ impl PlugInGrid {
         let mid = (0.5 * (lo + hi)).floor();
         Some(self.start_s + mid * self.resolution_s)
     }
+}
+
+impl PlugInGrid {
+    /// The grid time nearest `t_s`, strictly inside (lo, hi) (which `inside` found at least two
+    /// resolutions wide).
+    fn nearest_inside(&self, lo_s: f64, hi_s: f64, t_s: f64) -> f64 {
+        let to_steps = |t: f64| ((t - self.start_s) / self.resolution_s).round();
+        let (lo, hi) = (to_steps(lo_s), to_steps(hi_s));
+        // NaN (a degenerate secant) falls to the low side of the clamp.
+        let k = to_steps(t_s).max(lo + 1.0).min(hi - 1.0);
+        self.start_s + k * self.resolution_s
+    }
+
+    /// The latest grid time in [lo, hi) whose `gap` is ≤ 0, given gap(lo) ≤ 0 < gap(hi) and a gap
+    /// that grows with the time, to one resolution. Regula falsi with the Illinois modification
+    /// (Dowell & Jarratt 1971, *from memory*): the secant through the bracket's ends, rounded to
+    /// the grid, and the value at an end kept twice in a row halved so that end moves too. A step
+    /// that did not halve the bracket is followed by a bisection step, so the search never takes
+    /// more than twice the evaluations of bisection, and on a smooth gap takes a few.
+    fn latest_meeting(
+        &self,
+        (mut lo_s, mut gap_lo): (f64, f64),
+        (mut hi_s, mut gap_hi): (f64, f64),
+        mut gap: impl FnMut(f64) -> Result<f64, ModelError>,
+    ) -> Result<f64, ModelError> {
+        let mut moved_low_last = None;
+        let mut bisect_next = false;
+        while let Some(mid_s) = self.inside(lo_s, hi_s) {
+            let width_s = hi_s - lo_s;
+            let secant_ok =
+                gap_lo.is_finite() && gap_hi.is_finite() && gap_lo <= 0.0 && gap_hi > 0.0;
+            let t_s = if bisect_next || !secant_ok {
+                mid_s
+            } else {
+                self.nearest_inside(lo_s, hi_s, lo_s + width_s * gap_lo / (gap_lo - gap_hi))
+            };
+            let g = gap(t_s)?;
+            // NaN counts as missing the target, as the bisection on the probability did.
+            let meets = g <= 0.0;
+            if meets {
+                (lo_s, gap_lo) = (t_s, g);
+                if moved_low_last == Some(true) {
+                    gap_hi *= 0.5;
+                }
+            } else {
+                (hi_s, gap_hi) = (t_s, g);
+                if moved_low_last == Some(false) {
+                    gap_lo *= 0.5;
+                }
+            }
+            moved_low_last = Some(meets);
+            bisect_next = hi_s - lo_s > 0.5 * width_s;
+        }
+        Ok(lo_s)
+    }
+}
+
+/// How far a probability is past the target, on the log-odds scale (where the probability's
+/// dependence on the plug-in time is closer to a straight line than on its own scale): ≤ 0 when
+/// `p` meets `target`, and increasing in `p`.
+fn logit_gap(p: f64, target: f64) -> f64 {
+    let logit = |x: f64| {
+        let x = x.clamp(1e-300, 1.0 - 1e-16);
+        x.ln() - (1.0 - x).ln()
+    };
+    logit(p) - logit(target)
 }
 
 /// `night` with its block heater plugged in from `plug_in_s` to the departure, no margin path.
@@ -649,3 +726,75 @@ fn fuel_action(
 #[cfg(test)]
 #[path = "actions_tests.rs"]
 mod tests;
+
+#[cfg(test)]
+mod plug_in_grid_tests {
+    use super::*;
+
+    /// The latest grid time whose gap is ≤ 0, by trying every grid time (the definition).
+    fn by_every_time(grid: &PlugInGrid, steps: u32, gap: impl Fn(f64) -> f64) -> f64 {
+        (0..=steps)
+            .map(|k| grid.start_s + f64::from(k) * grid.resolution_s)
+            .filter(|&t| gap(t) <= 0.0)
+            .fold(grid.start_s, f64::max)
+    }
+
+    #[test]
+    fn the_root_search_finds_the_latest_meeting_time_within_twice_bisections_evaluations() {
+        let steps = 1_u32 << PLUG_IN_HALVINGS;
+        let grid = PlugInGrid {
+            start_s: 1_000.0,
+            resolution_s: 42.0,
+        };
+        let end_s = grid.start_s + f64::from(steps) * grid.resolution_s;
+        // Increasing gaps: straight, steep near the end (like the log-odds of a heater plugged
+        // in late), flat then steep, and a step; roots across the night.
+        let shapes: [fn(f64, f64) -> f64; 4] = [
+            |x, r| x - r,
+            |x, r| (8.0 * x).exp() - (8.0 * r).exp(),
+            |x, r| (x - r).powi(3),
+            |x, r| if x > r { 1.0 } else { -1.0 },
+        ];
+        for shape in shapes {
+            for root in [0.013, 0.31, 0.5, 0.77, 0.951, 0.999] {
+                let gap = |t: f64| shape((t - grid.start_s) / (end_s - grid.start_s), root);
+                let mut evaluations = 0;
+                let found = grid
+                    .latest_meeting(
+                        (grid.start_s, gap(grid.start_s)),
+                        (end_s, gap(end_s)),
+                        |t| {
+                            evaluations += 1;
+                            Ok(gap(t))
+                        },
+                    )
+                    .unwrap();
+                assert_eq!(found, by_every_time(&grid, steps, gap), "root {root}");
+                assert!(
+                    evaluations <= 2 * PLUG_IN_HALVINGS,
+                    "root {root}: {evaluations}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn a_nan_gap_counts_as_missing_and_an_error_is_passed_on() {
+        let grid = PlugInGrid {
+            start_s: 0.0,
+            resolution_s: 1.0,
+        };
+        let found = grid
+            .latest_meeting((0.0, -1.0), (64.0, 1.0), |t| {
+                Ok(if t > 10.0 { f64::NAN } else { -1.0 })
+            })
+            .unwrap();
+        assert_eq!(found, 10.0);
+        let failed = grid.latest_meeting((0.0, -1.0), (64.0, 1.0), |_| {
+            Err(ModelError::NoConvergence("test"))
+        });
+        assert!(failed.is_err());
+        assert!(logit_gap(0.05, 0.05).abs() < 1e-12 && logit_gap(0.0, 0.05).is_finite());
+        assert!(logit_gap(1.0, 0.05).is_finite() && logit_gap(0.06, 0.05) > 0.0);
+    }
+}
